@@ -1,0 +1,27 @@
+"""GFN-xTB through the ``tblite`` library."""
+
+from tblite.exceptions import TBLiteRuntimeError
+from tblite.interface import Calculator
+
+from .base import WarmStartEngine
+
+
+class TbliteEngine(WarmStartEngine):
+    """Engine backed by tblite."""
+
+    backend = "tblite"
+    library_error = TBLiteRuntimeError
+
+    def _new_calculator(self, coords_bohr):
+        calculator = Calculator(
+            self.method, self.numbers, coords_bohr,
+            charge=self.charge, uhf=self.unpaired_electrons,
+        )
+        calculator.set("verbosity", 0)
+        return calculator
+
+    def _move(self, calculator, coords_bohr):
+        calculator.update(positions=coords_bohr)
+
+    def _read(self, result):
+        return result.get("energy"), result.get("gradient")

@@ -1,0 +1,29 @@
+"""GFN-xTB through xtb-python (the ``xtb`` package)."""
+
+from xtb.interface import Calculator, Param, XTBException
+from xtb.libxtb import VERBOSITY_MUTED
+
+from .base import WarmStartEngine
+
+_PARAMS = {"GFN2-xTB": Param.GFN2xTB, "GFN1-xTB": Param.GFN1xTB}
+
+
+class XtbPythonEngine(WarmStartEngine):
+    """Engine backed by xtb-python."""
+
+    backend = "xtb-python"
+    library_error = XTBException
+
+    def _new_calculator(self, coords_bohr):
+        calculator = Calculator(
+            _PARAMS[self.method], self.numbers, coords_bohr,
+            charge=self.charge, uhf=self.unpaired_electrons,
+        )
+        calculator.set_verbosity(VERBOSITY_MUTED)
+        return calculator
+
+    def _move(self, calculator, coords_bohr):
+        calculator.update(coords_bohr)
+
+    def _read(self, result):
+        return result.get_energy(), result.get_gradient()

@@ -1,0 +1,22 @@
+"""The package's exceptions: problems with what the user gave vs calculations that failed.
+
+The command line maps them to one-line messages and exit codes (2 input, 3 calculation).
+"""
+
+
+class TorsionScanError(Exception):
+    """Base class for every error this package raises on purpose."""
+
+    exit_code = 1
+
+
+class InputError(TorsionScanError):
+    """The input (molecule, file, option) cannot be used; the message says how to fix it."""
+
+    exit_code = 2
+
+
+class CalculationError(TorsionScanError):
+    """A quantum-chemical calculation or an optimisation failed."""
+
+    exit_code = 3

@@ -1,0 +1,93 @@
+"""Internal-coordinate values and their Cartesian derivatives, rigid rotations.
+
+Coordinates are (N, 3) arrays in Bohr unless a function says otherwise; angles are radians.
+The dihedral follows the IUPAC sign convention (the same as RDKit): looking along j->k, the
+angle is positive when bond j-i must turn clockwise to eclipse bond k-l.
+"""
+
+import numpy as np
+
+
+def dihedral(coords, i, j, k, l):
+    """Dihedral angle i-j-k-l in radians, in (-pi, pi]."""
+    b0 = coords[i] - coords[j]
+    b1 = coords[k] - coords[j]
+    b2 = coords[l] - coords[k]
+    b1_unit = b1 / np.linalg.norm(b1)
+    v = b0 - np.dot(b0, b1_unit) * b1_unit
+    w = b2 - np.dot(b2, b1_unit) * b1_unit
+    x = np.dot(v, w)
+    y = np.dot(np.cross(b1_unit, v), w)
+    return float(np.arctan2(y, x))
+
+
+def dihedral_gradient(coords, i, j, k, l):
+    """d(dihedral)/d(coords) as an (N, 3) array in rad/Bohr (Blondel and Karplus, 1996)."""
+    f = coords[i] - coords[j]
+    g = coords[j] - coords[k]
+    h = coords[l] - coords[k]
+    a = np.cross(f, g)
+    b = np.cross(h, g)
+    a2 = np.dot(a, a)
+    b2 = np.dot(b, b)
+    g_norm = np.linalg.norm(g)
+    grad = np.zeros_like(coords)
+    grad[i] = -g_norm / a2 * a
+    grad[l] = g_norm / b2 * b
+    fg = np.dot(f, g) / (a2 * g_norm)
+    hg = np.dot(h, g) / (b2 * g_norm)
+    grad[j] = g_norm / a2 * a + fg * a - hg * b
+    grad[k] = -g_norm / b2 * b - fg * a + hg * b
+    return grad
+
+
+def bond_angle_gradient(coords, i, j, k):
+    """d(angle i-j-k)/d(coords) as an (N, 3) array in rad/Bohr; j is the vertex."""
+    u = coords[i] - coords[j]
+    v = coords[k] - coords[j]
+    u_len = np.linalg.norm(u)
+    v_len = np.linalg.norm(v)
+    u_hat = u / u_len
+    v_hat = v / v_len
+    cos_t = np.clip(np.dot(u_hat, v_hat), -1.0, 1.0)
+    sin_t = np.sqrt(max(1.0 - cos_t * cos_t, 1e-12))
+    grad = np.zeros_like(coords)
+    grad[i] = (cos_t * u_hat - v_hat) / (u_len * sin_t)
+    grad[k] = (cos_t * v_hat - u_hat) / (v_len * sin_t)
+    grad[j] = -(grad[i] + grad[k])
+    return grad
+
+
+def rotation_matrix(axis, angle):
+    """3x3 matrix rotating by `angle` (radians, right-hand rule) about the vector `axis`."""
+    axis = np.asarray(axis, dtype=float)
+    axis = axis / np.linalg.norm(axis)
+    x, y, z = axis
+    c, s = np.cos(angle), np.sin(angle)
+    cross = np.array([[0.0, -z, y], [z, 0.0, -x], [-y, x, 0.0]])
+    return c * np.eye(3) + s * cross + (1.0 - c) * np.outer(axis, axis)
+
+
+def rotate_about_bond(coords, j, k, moving, angle):
+    """Rotate atoms `moving` rigidly about the axis j->k by `angle` (radians).
+
+    With k's side moving, a dihedral i-j-k-l (i not moving, l moving) changes by exactly
+    `angle`. Returns (new_coords, rotation) where rotation is the 3x3 matrix applied.
+    """
+    rotation = rotation_matrix(coords[k] - coords[j], angle)
+    new = coords.copy()
+    new[moving] = (coords[moving] - coords[k]) @ rotation.T + coords[k]
+    return new, rotation
+
+
+def rigid_body_directions(coords):
+    """Orthonormal rows spanning the infinitesimal translations and rotations, shape (<=6, 3N)."""
+    n = len(coords)
+    centred = coords - coords.mean(axis=0)
+    modes = []
+    for axis in np.eye(3):
+        modes.append(np.tile(axis, n))
+        modes.append(np.cross(axis, centred).ravel())
+    q, r = np.linalg.qr(np.array(modes).T)
+    keep = np.abs(np.diag(r)) > 1e-8 * max(1.0, np.abs(r).max())
+    return q[:, keep].T
