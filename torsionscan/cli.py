@@ -1,0 +1,190 @@
+"""Command line: a thin shell over the library. Errors become one-line messages and exit codes
+(2 = input problem, 3 = calculation failure); --debug shows the traceback instead."""
+
+import argparse
+import csv
+import logging
+import sys
+from pathlib import Path
+
+from . import __version__
+from .errors import InputError, TorsionScanError
+
+log = logging.getLogger("torsionscan")
+
+
+def _add_molecule_options(parser):
+    parser.add_argument("molecule", help="SMILES string, or a MOL/SDF/XYZ file")
+    parser.add_argument("--record", type=int, default=1, help="record number in a multi-record SDF (1-based)")
+    parser.add_argument("--charge", type=int, default=None, help="total charge (default: from the input; 0 for XYZ)")
+    parser.add_argument("--unpaired-electrons", type=int, default=0, help="number of unpaired electrons (default 0)")
+
+
+def _add_scan_options(parser):
+    parser.add_argument("--step", type=float, default=15.0, help="grid step in degrees; must divide 180 (default 15)")
+    parser.add_argument("--temperature", type=float, nargs="+", default=[298.15],
+                        help="temperature(s) in kelvin for populations (default 298.15)")
+    parser.add_argument("--scis-window", type=float, default=30.0,
+                        help="near-planar s-cis window half-width in degrees (default 30)")
+    parser.add_argument("--conformers", type=int, default=5, help="start structures to embed (default 5)")
+    parser.add_argument("--seed", type=int, default=61453, help="random seed for embedding")
+    parser.add_argument("--method", choices=["GFN2-xTB", "GFN1-xTB"], default="GFN2-xTB")
+    parser.add_argument("--engine", choices=["auto", "xtb-python", "tblite"], default="auto",
+                        help="GFN-xTB implementation (default: xtb-python if installed, else tblite)")
+
+
+def _settings(args):
+    from .scan import ScanSettings
+
+    return ScanSettings(
+        step_deg=args.step, conformers=args.conformers, seed=args.seed, method=args.method,
+        engine=args.engine, temperatures_k=tuple(args.temperature), scis_window_deg=args.scis_window,
+    )
+
+
+def format_result(result, out_dir):
+    """Readable terminal summary of a ScanResult."""
+    from .output import summary_dict
+
+    summary = summary_dict(result)
+    lines = [f"{result.name}  {result.smiles}  — {result.method} via {result.engine}, gas phase"]
+    for entry in summary["bonds"]:
+        atoms = "-".join(str(a) for a in entry["dihedral_atoms"])
+        kind = "conjugated" if entry["conjugated"] else "chosen"
+        lines.append(f"dihedral {atoms} (bond {entry['bond']}, {kind}; 0° = s-cis, 180° = s-trans)")
+        minima = "   ".join(f"{m['angle_deg']:7.1f}° {m['energy_rel_kcal_mol']:6.2f}" for m in entry["minima"])
+        lines.append(f"  minima (kcal/mol):   {minima}")
+        shown = set()
+        for b in entry["barriers"]:
+            # a symmetric profile repeats every barrier as its mirror image: show each once
+            key = tuple(round(abs(b[k]), 1) for k in ("from_minimum_deg", "over_maximum_deg", "to_minimum_deg"))
+            if entry["symmetric_profile"] and key in shown:
+                continue
+            shown.add(key)
+            lines.append(
+                f"  barrier {b['from_minimum_deg']:7.1f}° → {b['to_minimum_deg']:7.1f}° over "
+                f"{b['over_maximum_deg']:7.1f}°: {b['height_kcal_mol']:5.2f} kcal/mol ({b['height_kj_mol']:.1f} kJ/mol)"
+            )
+        for p in entry["populations"]:
+            lines.append(
+                f"  {p['temperature_k']:g} K: s-cis {100 * p['s_cis']:.1f}%, s-trans {100 * p['s_trans']:.1f}%, "
+                f"|φ| ≤ {p['scis_window_deg']:g}° {100 * p['scis_window']:.2f}%, "
+                f"ΔG(s-cis − s-trans) {p['delta_g_scis_minus_strans_kcal_mol']:+.2f} kcal/mol"
+            )
+        fourier = entry["fourier"]
+        flagged = entry["hysteresis"]["points"]
+        hysteresis = ", ".join(f"{h['angle_deg']:g}° ({h['energy_difference_kcal_mol']:.2f})" for h in flagged) or "none"
+        computed = sum(1 for p in entry["points"] if not p["mirrored"])
+        unconverged = sum(1 for p in entry["points"] if not p["converged"] and not p["mirrored"])
+        lines.append(
+            f"  fit order {fourier['order']}, RMSE {fourier['rmse_kcal_mol']:.3f} kcal/mol; {computed} points"
+            f" ({unconverged} not converged), median {entry['gradient_evaluations_per_point_median']:g}"
+            f" gradients/point, {entry['gradient_evaluations_total']} in all; hysteresis: {hysteresis}"
+        )
+    lines.append(f"files: {out_dir}/")
+    lines.append("Semi-empirical estimate (typical torsion error ~1 kcal/mol): confirm decisions at a higher level.")
+    return "\n".join(lines)
+
+
+def run_scan(args):
+    from .output import write_results
+    from .scan import scan
+
+    result = scan(
+        args.molecule, bond=args.bond, name=args.name, charge=args.charge,
+        unpaired_electrons=args.unpaired_electrons, record=args.record, settings=_settings(args),
+    )
+    out_dir = args.out or Path("results") / result.name
+    write_results(result, out_dir)
+    print(format_result(result, out_dir))
+    return 0
+
+
+def run_bonds(args):
+    from .molecule import find_conjugated_bonds, load_molecule
+
+    molecule = load_molecule(args.molecule, charge=args.charge, unpaired_electrons=args.unpaired_electrons,
+                             record=args.record)
+    bonds = find_conjugated_bonds(molecule)
+    print(f"{molecule.smiles}: {len(bonds)} conjugated single bond(s); atom numbers are 1-based, hydrogens last")
+    symbols = molecule.symbols
+    for bond in bonds:
+        atoms = "-".join(f"{symbols[a]}{a + 1}" for a in bond.atoms)
+        print(f"  bond {bond.label:>7s}   dihedral {atoms}")
+    return 0
+
+
+def run_demo(args):
+    """Scan every compound of a demo list (CSV with name,smiles columns); failures do not stop the rest."""
+    from .output import write_results
+    from .scan import scan
+
+    if not args.list.is_file():
+        raise InputError(f"demo list {args.list} not found; run from the repository root or pass the list path")
+    with args.list.open(newline="") as handle:
+        rows = [row for row in csv.DictReader(handle) if row.get("smiles")]
+    failures = 0
+    for row in rows:
+        try:
+            result = scan(row["smiles"], name=row["name"], settings=_settings(args))
+        except TorsionScanError as error:
+            failures += 1
+            print(f"{row['name']}: failed: {error}")
+            continue
+        out_dir = args.out / result.name
+        write_results(result, out_dir)
+        print(format_result(result, out_dir) + "\n")
+    print(f"{len(rows) - failures} of {len(rows)} compounds scanned; results in {args.out}/")
+    return 3 if failures else 0
+
+
+def build_parser():
+    parser = argparse.ArgumentParser(
+        prog="torsionscan",
+        description="Relaxed GFN-xTB torsion scans of conjugated single bonds (0° = s-cis, 180° = s-trans).",
+    )
+    parser.add_argument("--version", action="version", version=f"torsionscan {__version__}")
+    parser.add_argument("--debug", action="store_true", help="show tracebacks and debug logging")
+    commands = parser.add_subparsers(dest="command", required=True)
+
+    scan_parser = commands.add_parser("scan", help="relaxed torsion scan of one molecule")
+    _add_molecule_options(scan_parser)
+    scan_parser.add_argument("--bond", help="scan only this bond: two 1-based atom numbers j-k, or four i-j-k-l")
+    scan_parser.add_argument("--name", help="name for the molecule and its result folder")
+    scan_parser.add_argument("--out", type=Path, help="result folder (default results/<name>)")
+    _add_scan_options(scan_parser)
+    scan_parser.set_defaults(handler=run_scan)
+
+    bonds_parser = commands.add_parser("bonds", help="list the conjugated single bonds a scan would cover")
+    _add_molecule_options(bonds_parser)
+    bonds_parser.set_defaults(handler=run_bonds)
+
+    demo_parser = commands.add_parser("demo", help="scan the demo compound list")
+    demo_parser.add_argument("list", nargs="?", type=Path, default=Path("inputs/demo_dienes.csv"))
+    demo_parser.add_argument("--out", type=Path, default=Path("results/demo"))
+    _add_scan_options(demo_parser)
+    demo_parser.set_defaults(handler=run_demo)
+    return parser
+
+
+def main(argv=None):
+    """Entry point; returns the exit status."""
+    args = build_parser().parse_args(argv)
+    logging.basicConfig(level=logging.DEBUG if args.debug else logging.WARNING,
+                        format="torsionscan: %(levelname)s: %(message)s")
+    try:
+        return args.handler(args)
+    except TorsionScanError as error:
+        if args.debug:
+            raise
+        print(f"torsionscan: error: {error}", file=sys.stderr)
+        return error.exit_code
+    except Exception as error:  # an unforeseen failure: still one line unless --debug
+        if args.debug:
+            raise
+        print(f"torsionscan: internal error: {type(error).__name__}: {error} (rerun with --debug)", file=sys.stderr)
+        return 1
+
+
+if __name__ == "__main__":
+    sys.exit(main())

@@ -1,0 +1,67 @@
+"""The profile figure: scan points, fitted curve, s-cis/s-trans regions, minima and barriers."""
+
+import math
+
+import matplotlib
+
+matplotlib.use("Agg")
+import matplotlib.pyplot as plt  # noqa: E402
+import numpy as np  # noqa: E402
+
+from ..units import HARTREE_KCAL_MOL  # noqa: E402
+
+_SCIS_SHADE = "#dfe9f5"
+_STRANS_SHADE = "#f6eadb"
+_WINDOW_SHADE = "#b9d0ea"
+
+
+def profile_figure(result, bond, title=None):
+    """A matplotlib Figure of one dihedral's relaxed profile (energies relative, kcal/mol)."""
+    ref = bond.reference_energy_hartree
+    fig, ax = plt.subplots(figsize=(8.0, 6.0), dpi=110)
+    populations = bond.populations[0] if bond.populations else None
+    window = populations.scis_window_deg if populations else 30.0
+    ax.axvspan(-90, 90, color=_SCIS_SHADE, zorder=0, label="s-cis region (|φ| < 90°)")
+    ax.axvspan(-window, window, color=_WINDOW_SHADE, zorder=0, label=f"near-planar s-cis window (|φ| ≤ {window:g}°)")
+    ax.axvspan(-180, -90, color=_STRANS_SHADE, zorder=0, label="s-trans region (|φ| > 90°)")
+    ax.axvspan(90, 180, color=_STRANS_SHADE, zorder=0)
+
+    dense = np.linspace(-180, 180, 721)
+    ax.plot(dense, bond.fit.series.value(dense), color="#333333", lw=1.5,
+            label=f"Fourier fit, order {bond.fit.series.order} (RMSE {bond.fit.rmse_kcal_mol:.2f})")
+    for mirrored, marker, name in ((False, "o", "relaxed scan points"), (True, "o", "mirror images")):
+        pts = [p for p in bond.points if p.mirrored == mirrored and math.isfinite(p.energy_hartree)]
+        if not pts:
+            continue
+        x = [p.angle_deg for p in pts]
+        y = [(p.energy_hartree - ref) * HARTREE_KCAL_MOL for p in pts]
+        ax.plot(x, y, marker, ms=5, mfc="white" if mirrored else "#1f5fa8", mec="#1f5fa8", ls="none", label=name)
+        bad = [(a, e) for a, e, p in zip(x, y, pts) if not p.converged]
+        if bad:
+            ax.plot(*zip(*bad), "x", color="red", ms=8, ls="none", label="not converged")
+
+    for m in bond.minima:
+        e = (m.energy_hartree - ref) * HARTREE_KCAL_MOL
+        ax.plot(m.angle_deg, e, "v", color="#2a7f3f", ms=8, zorder=5)
+        ax.annotate(f"min {m.angle_deg:.0f}°\n{e:.2f}", (m.angle_deg, e), textcoords="offset points",
+                    xytext=(0, -26), ha="center", fontsize=8, color="#2a7f3f")
+    for m in bond.maxima:
+        e = (m.energy_hartree - ref) * HARTREE_KCAL_MOL
+        ax.plot(m.angle_deg, e, "^", color="#b23a2e", ms=8, zorder=5)
+        ax.annotate(f"{m.angle_deg:.0f}°\n{e:.2f}", (m.angle_deg, e), textcoords="offset points",
+                    xytext=(0, 8), ha="center", fontsize=8, color="#b23a2e")
+
+    if populations:
+        ax.plot([], [], " ", label=(f"{populations.temperature_k:g} K: s-cis {100 * populations.s_cis:.1f}%, "
+                                    f"s-trans {100 * populations.s_trans:.1f}%, window {100 * populations.scis_window:.1f}%"))
+    ax.set_xlim(-180, 180)
+    ax.set_xticks(range(-180, 181, 45))
+    ax.set_xlabel("dihedral φ / degrees   (0 = s-cis, ±180 = s-trans)")
+    ax.set_ylabel("relative energy / kcal mol⁻¹")
+    top = max(bond.fit.series.value(dense).max(), 1.0)
+    ax.set_ylim(-0.12 * top - 0.3, 1.25 * top + 0.3)
+    label = f"{result.name}: dihedral {'-'.join(str(a + 1) for a in bond.dihedral_atoms)}"
+    ax.set_title(title or f"{label} — relaxed {result.method} scan (semi-empirical estimate)", fontsize=10)
+    ax.legend(fontsize=7, loc="upper center", bbox_to_anchor=(0.5, -0.13), ncol=2, frameon=False)
+    fig.tight_layout()
+    return fig

@@ -1,0 +1,153 @@
+"""The summary JSON and the profile table (CSV) of a scan."""
+
+import csv
+import json
+import math
+import statistics
+
+from .. import __version__
+from ..records import SCHEMA_VERSION
+from ..units import HARTREE_KCAL_MOL, KCAL_KJ
+
+METHOD_CAUTION = (
+    "Semi-empirical estimate: GFN2-xTB (Bannwarth, Ehlert, Grimme, J. Chem. Theory Comput. 2019, 15, 1652) "
+    "torsion energies are typically within about 1 kcal/mol of high-level references and sometimes worse. "
+    "Confirm decisions with higher-level calculations or experiment; this is not a safety assessment."
+)
+POPULATION_NOTE = (
+    "Classical Boltzmann populations over the 1-D relaxed electronic-energy profile (gas phase): "
+    "s_cis is |dihedral| < 90 deg, s_trans is |dihedral| > 90 deg, scis_window is |dihedral| <= the window. "
+    "Zero-point energy, vibrational entropy differences between conformers, quantum effects and solvent are not included."
+)
+
+
+def _rel(energy_hartree, reference_hartree):
+    """(kcal/mol, kJ/mol) relative energies, None for a failed point."""
+    if not math.isfinite(energy_hartree):
+        return None, None
+    kcal = (energy_hartree - reference_hartree) * HARTREE_KCAL_MOL
+    return round(kcal, 5), round(kcal * KCAL_KJ, 5)
+
+
+def bond_label(atoms):
+    """1-based label "j-k" of the central bond of 0-based dihedral atoms."""
+    return f"{atoms[1] + 1}-{atoms[2] + 1}"
+
+
+def _stationary_dict(record, reference):
+    kcal, kj = _rel(record.energy_hartree, reference)
+    return {
+        "angle_deg": round(record.angle_deg, 3), "fit_angle_deg": round(record.fit_angle_deg, 3),
+        "energy_rel_kcal_mol": kcal, "energy_rel_kj_mol": kj,
+        "refinement": record.refinement, "converged": record.converged,
+    }
+
+
+def bond_dict(result, bond):
+    """The summary entry of one scanned dihedral."""
+    ref = bond.reference_energy_hartree
+    computed = [p for p in bond.points if not p.mirrored]
+    series = bond.fit.series
+    points = []
+    for p in bond.points:
+        kcal, kj = _rel(p.energy_hartree, ref)
+        entry = {
+            "angle_deg": p.angle_deg, "measured_angle_deg": round(p.measured_angle_deg, 5),
+            "energy_rel_kcal_mol": kcal, "energy_rel_kj_mol": kj,
+            "fit_kcal_mol": round(float(series.value(p.angle_deg)), 5),
+            "gradient_evaluations": p.gradient_evaluations, "converged": p.converged, "mirrored": p.mirrored,
+        }
+        if p.failure:
+            entry["failure"] = p.failure
+        points.append(entry)
+    return {
+        "bond": bond_label(bond.dihedral_atoms),
+        "dihedral_atoms": [a + 1 for a in bond.dihedral_atoms],
+        "conjugated": bond.conjugated,
+        "symmetric_profile": bond.symmetric,
+        "method": result.method,
+        "engine": result.engine,
+        "reference_energy_hartree": ref,
+        "points": points,
+        "fourier": {
+            "order": series.order,
+            "symmetric": bond.fit.symmetric,
+            "rmse_kcal_mol": round(bond.fit.rmse_kcal_mol, 5),
+            "max_residual_kcal_mol": round(bond.fit.max_residual_kcal_mol, 5),
+            "series_kcal_mol": {
+                "form": "E = constant + sum_n [cos_n cos(n phi) + sin_n sin(n phi)]",
+                "constant": series.constant, "cos": list(series.cos), "sin": list(series.sin),
+            },
+            "force_field": {
+                "form": "E = constant + sum_n V_n/2 [1 + cos(n phi - phase_n)]",
+                "constant_kcal_mol": series.force_field_constant,
+                "terms": [
+                    {"periodicity": t.periodicity, "v_kcal_mol": t.barrier_kcal_mol,
+                     "v_kj_mol": t.barrier_kj_mol, "phase_deg": t.phase_deg}
+                    for t in series.force_field_terms()
+                ],
+            },
+        },
+        "minima": [_stationary_dict(m, ref) for m in bond.minima],
+        "maxima": [_stationary_dict(m, ref) for m in bond.maxima],
+        "barriers": [
+            {"from_minimum_deg": round(b.from_minimum_deg, 3), "over_maximum_deg": round(b.over_maximum_deg, 3),
+             "to_minimum_deg": round(b.to_minimum_deg, 3), "height_kcal_mol": round(b.height_kcal_mol, 4),
+             "height_kj_mol": round(b.height_kcal_mol * KCAL_KJ, 4)}
+            for b in bond.barriers
+        ],
+        "populations": [
+            {"temperature_k": p.temperature_k, "s_cis": p.s_cis, "s_trans": p.s_trans,
+             "scis_window": p.scis_window, "scis_window_deg": p.scis_window_deg,
+             "delta_g_scis_minus_strans_kcal_mol": p.delta_g_kcal_mol}
+            for p in bond.populations
+        ],
+        "populations_note": POPULATION_NOTE,
+        "hysteresis": {
+            "threshold_kcal_mol": result.settings.get("hysteresis_kcal_mol"),
+            "flagged": bool(bond.hysteresis),
+            "points": [
+                {"angle_deg": h.angle_deg, "energy_difference_kcal_mol": round(h.energy_difference_kcal_mol, 4)}
+                for h in bond.hysteresis
+            ],
+        },
+        "gradient_evaluations_total": bond.gradient_evaluations_total,
+        "gradient_evaluations_per_point_median": statistics.median(p.gradient_evaluations for p in computed),
+        "wall_time_s": round(bond.wall_time_s, 3),
+    }
+
+
+def summary_dict(result):
+    """The whole summary as plain data (see README for the fields)."""
+    return {
+        "schema_version": SCHEMA_VERSION,
+        "program": f"torsionscan {__version__}",
+        "name": result.name,
+        "smiles": result.smiles,
+        "charge": result.charge,
+        "unpaired_electrons": result.unpaired_electrons,
+        "method": result.method,
+        "engine": result.engine,
+        "caution": METHOD_CAUTION,
+        "settings": result.settings,
+        "start": {
+            "energy_hartree": result.start_energy_hartree,
+            "gradient_evaluations": result.start_gradient_evaluations,
+        },
+        "bonds": [bond_dict(result, b) for b in result.bonds],
+    }
+
+
+def write_summary(result, path):
+    """Write the summary JSON."""
+    path.write_text(json.dumps(summary_dict(result), indent=2, allow_nan=False) + "\n")
+
+
+def write_profile_table(bond_entry, path):
+    """Write one dihedral's points (from its summary entry) as CSV."""
+    columns = ["angle_deg", "measured_angle_deg", "energy_rel_kcal_mol", "energy_rel_kj_mol", "fit_kcal_mol",
+               "converged", "gradient_evaluations", "mirrored"]
+    with path.open("w", newline="") as handle:
+        writer = csv.DictWriter(handle, fieldnames=columns, extrasaction="ignore")
+        writer.writeheader()
+        writer.writerows(bond_entry["points"])
