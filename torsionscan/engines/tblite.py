@@ -18,6 +18,7 @@ class TbliteEngine(WarmStartEngine):
             charge=self.charge, uhf=self.unpaired_electrons,
         )
         calculator.set("verbosity", 0)
+        calculator.set("accuracy", self.accuracy)
         return calculator
 
     def _move(self, calculator, coords_bohr):

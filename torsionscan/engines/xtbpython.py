@@ -20,6 +20,7 @@ class XtbPythonEngine(WarmStartEngine):
             charge=self.charge, uhf=self.unpaired_electrons,
         )
         calculator.set_verbosity(VERBOSITY_MUTED)
+        calculator.set_accuracy(self.accuracy)
         return calculator
 
     def _move(self, calculator, coords_bohr):

@@ -1,0 +1,109 @@
+"""The command line end to end: files written, summary fields, and one-line errors with exit codes."""
+
+import csv
+import json
+import subprocess
+import sys
+
+import pytest
+from rdkit import Chem
+
+from torsionscan.cli import main
+
+
+@pytest.fixture(scope="module")
+def acrolein_run(tmp_path_factory):
+    """A real subprocess run of the installed command on acrolein with a coarse grid."""
+    out = tmp_path_factory.mktemp("acrolein")
+    completed = subprocess.run(
+        [sys.executable, "-m", "torsionscan.cli", "scan", "C=CC=O", "--name", "acrolein", "--step", "30",
+         "--temperature", "253", "298.15", "353", "--conformers", "2", "--out", str(out)],
+        capture_output=True, text=True, timeout=300,
+    )
+    assert completed.returncode == 0, completed.stderr
+    return out, completed.stdout
+
+
+def test_terminal_summary_is_readable(acrolein_run):
+    _, stdout = acrolein_run
+    assert "acrolein" in stdout and "s-cis" in stdout and "barrier" in stdout
+    assert "Semi-empirical estimate" in stdout
+
+
+def test_summary_json_has_the_documented_fields(acrolein_run):
+    out, _ = acrolein_run
+    summary = json.loads((out / "summary.json").read_text())
+    assert summary["schema_version"] == 1
+    bond = summary["bonds"][0]
+    for key in ("dihedral_atoms", "method", "engine", "points", "minima", "barriers", "populations",
+                "fourier", "hysteresis", "gradient_evaluations_total"):
+        assert key in bond
+    assert bond["dihedral_atoms"] == [1, 2, 3, 4]
+    assert bond["method"] == "GFN2-xTB"
+    point = bond["points"][0]
+    for key in ("angle_deg", "measured_angle_deg", "energy_rel_kcal_mol", "gradient_evaluations", "converged"):
+        assert key in point
+    assert [p["temperature_k"] for p in bond["populations"]] == [253, 298.15, 353]
+    # s-trans acrolein is the global minimum (experiment and high-level theory agree; common knowledge)
+    lowest = min(bond["minima"], key=lambda m: m["energy_rel_kcal_mol"])
+    assert abs(lowest["angle_deg"]) > 170
+    # populations: s-cis grows with temperature when s-trans is lower
+    s_cis = [p["s_cis"] for p in bond["populations"]]
+    assert s_cis == sorted(s_cis)
+    for p in bond["populations"]:
+        assert p["s_cis"] + p["s_trans"] == pytest.approx(1.0, abs=1e-9)
+
+
+def test_structures_table_and_plots_are_written(acrolein_run):
+    out, _ = acrolein_run
+    frames = (out / "bond_2-3_scan.xyz").read_text().splitlines()
+    n_atoms = int(frames[0])
+    assert len(frames) % (n_atoms + 2) == 0
+    assert len(frames) // (n_atoms + 2) == 7  # 0..180 deg in 30 deg steps
+    assert "dihedral=" in frames[1] and "kcal/mol" in frames[1]
+    minima = [m for m in Chem.SDMolSupplier(str(out / "bond_2-3_minima.sdf"), removeHs=False)]
+    assert minima and all(m is not None and m.HasProp("energy_rel_kcal_mol") for m in minima)
+    rows = list(csv.DictReader((out / "bond_2-3_profile.csv").open()))
+    assert len(rows) == 12  # full circle after mirroring
+    for suffix in ("png", "svg"):
+        assert (out / f"bond_2-3_profile.{suffix}").stat().st_size > 1000
+
+
+def test_bonds_command_lists_one_based_bonds(capsys):
+    assert main(["bonds", "C=CC(=O)c1ccccc1"]) == 0
+    text = capsys.readouterr().out
+    assert "2 conjugated single bond(s)" in text and "bond     2-3" in text
+
+
+@pytest.mark.parametrize(
+    "argv, code, words",
+    [
+        (["scan", "C=C(C"], 2, "SMILES"),
+        (["scan", "nowhere.sdf"], 2, "file not found"),
+        (["scan", "CCO"], 2, "--bond"),
+        (["scan", "C1=CC=CC1", "--bond", "3-4"], 2, "ring"),
+        (["scan", "C=CC=C", "--bond", "1-2"], 2, "not a single bond"),
+        (["scan", "[CH2]/C=C/C=C"], 2, "unpaired"),
+        (["scan", "C=CC=C[Fr]"], 2, ""),
+        (["scan", "C=CC=C", "--step", "7"], 2, "divide 180"),
+    ],
+)
+def test_bad_input_gives_one_line_and_exit_code(capsys, argv, code, words):
+    assert main(argv) == code
+    err = capsys.readouterr().err.strip()
+    assert err.startswith("torsionscan: error:") and words in err
+    assert len(err.splitlines()) == 1
+
+
+def test_element_outside_the_method_is_refused(capsys):
+    # Og (Z = 118) is outside GFN2-xTB's H-Rn parametrisation
+    assert main(["scan", "C=CC=C[Og]"]) == 2
+    assert "not covered" in capsys.readouterr().err
+
+
+def test_error_from_a_real_subprocess_has_no_traceback():
+    completed = subprocess.run(
+        [sys.executable, "-m", "torsionscan.cli", "scan", "not-a-molecule"], capture_output=True, text=True
+    )
+    assert completed.returncode == 2
+    assert "Traceback" not in completed.stderr and completed.stderr.count("\n") == 1

@@ -1,0 +1,80 @@
+"""The two GFN2-xTB implementations behind the engine interface: agreement, units, errors."""
+
+import numpy as np
+import pytest
+
+from torsionscan.engines import available_backends, make_engine
+from torsionscan.errors import InputError
+from torsionscan.molecule import load_molecule, starting_structures
+from torsionscan.units import ANGSTROM_BOHR
+
+BOTH = pytest.mark.skipif(
+    set(available_backends()) != {"xtb-python", "tblite"}, reason="needs both xtb-python and tblite"
+)
+
+
+@pytest.fixture(scope="module")
+def acrolein():
+    molecule = load_molecule("C=CC=O")
+    coords = starting_structures(molecule, count=1)[0] * ANGSTROM_BOHR
+    return molecule, coords
+
+
+@BOTH
+def test_xtb_python_and_tblite_agree(acrolein):
+    # two independent implementations of GFN2-xTB (Bannwarth, Ehlert, Grimme, JCTC 2019) must agree
+    molecule, coords = acrolein
+    results = [
+        make_engine(molecule.numbers, backend=name).energy_and_gradient(coords)
+        for name in ("xtb-python", "tblite")
+    ]
+    assert abs(results[0][0] - results[1][0]) <= 1e-6
+    assert np.abs(results[0][1] - results[1][1]).max() <= 1e-6
+
+
+@pytest.mark.parametrize("backend", available_backends())
+def test_gradient_is_the_derivative_of_the_energy_in_hartree_per_bohr(acrolein, backend):
+    molecule, coords = acrolein
+    engine = make_engine(molecule.numbers, backend=backend)
+    _, gradient = engine.energy_and_gradient(coords)
+    step = 1e-4  # Bohr
+    for atom, axis in [(0, 0), (2, 1), (3, 2), (5, 0)]:
+        plus, minus = coords.copy(), coords.copy()
+        plus[atom, axis] += step
+        minus[atom, axis] -= step
+        numeric = (engine.energy_and_gradient(plus)[0] - engine.energy_and_gradient(minus)[0]) / (2 * step)
+        assert numeric == pytest.approx(gradient[atom, axis], abs=2e-6)
+
+
+def test_warm_start_gives_the_same_energy_as_a_cold_start(acrolein):
+    molecule, coords = acrolein
+    engine = make_engine(molecule.numbers)
+    engine.energy_and_gradient(coords * 1.01)
+    warm = engine.energy_and_gradient(coords)[0]
+    cold = make_engine(molecule.numbers).energy_and_gradient(coords)[0]
+    assert warm == pytest.approx(cold, abs=1e-7)
+
+
+def test_gfn1_is_selectable_and_differs_from_gfn2(acrolein):
+    molecule, coords = acrolein
+    gfn1 = make_engine(molecule.numbers, method="GFN1-xTB").energy_and_gradient(coords)[0]
+    gfn2 = make_engine(molecule.numbers).energy_and_gradient(coords)[0]
+    assert gfn1 < 0 and gfn2 < 0 and abs(gfn1 - gfn2) > 0.1
+
+
+def test_odd_electron_count_needs_unpaired_electrons():
+    with pytest.raises(InputError, match="unpaired"):
+        make_engine([6, 1, 1, 1])  # methyl radical without --unpaired-electrons
+    make_engine([6, 1, 1, 1], unpaired_electrons=1)
+
+
+def test_element_outside_gfn_parametrisation_is_refused():
+    with pytest.raises(InputError, match="not covered"):
+        make_engine([6, 92])
+
+
+def test_unknown_method_and_engine_are_refused():
+    with pytest.raises(InputError, match="method"):
+        make_engine([1, 1], method="PM7")
+    with pytest.raises(InputError, match="engine"):
+        make_engine([1, 1], backend="quantum-magic")
