@@ -293,7 +293,7 @@ class _BondScanner:
         else:
             if abs(wrap_deg(point.angle_deg - fit_angle)) < 0.05 and point.converged:
                 return StationaryRecord(
-                    "maximum", point.measured_angle_deg, fit_angle, point.energy_hartree,
+                    "maximum", _display_angle(point.measured_angle_deg), fit_angle, point.energy_hartree,
                     "grid point", point.converged, point.coords_bohr,
                 )
             how = "constrained at the fitted angle"
@@ -304,7 +304,9 @@ class _BondScanner:
 def _display_angle(angle_deg):
     """Angle in (-180, 180] so that s-trans prints as 180."""
     wrapped = wrap_deg(angle_deg)
-    return 180.0 if wrapped <= -180.0 + 1e-3 else wrapped
+    if wrapped <= -180.0 + 1e-3:
+        return 180.0
+    return 0.0 if abs(wrapped) < 5e-4 else wrapped
 
 
 def _in_arc(angle, low, high):
@@ -318,6 +320,50 @@ def _stationary(result, atoms, kind, fit_angle, how):
         kind, _display_angle(np.degrees(geometry.dihedral(coords, *atoms))), fit_angle,
         result.energy, how, result.converged, coords,
     )
+
+
+FIT_WIGGLE_KCAL_MOL = 0.001  # extrema pairs of the fit shallower than this are not refined
+FLAT_KCAL_MOL = 0.01  # refined minimum/maximum pairs closer than this are one flat region
+
+
+def _on_mirror_plane(angle_deg):
+    return min(abs(wrap_deg(angle_deg)), 180.0 - abs(wrap_deg(angle_deg))) < 0.05
+
+
+def merge_flat_extrema(records, symmetric, flat_hartree):
+    """Remove neighbouring minimum/maximum pairs whose refined energies differ by less than
+    flat_hartree (or the wrong way round): they are one flat region, not two stationary points.
+
+    records alternate in kind around the circle. On a symmetric profile a flat pair that
+    touches a mirror plane (0 or 180 deg) is merged together with its mirror image, leaving
+    one stationary point on the plane, so the result stays mirror symmetric.
+    """
+    records = sorted(records, key=lambda r: wrap_deg(r.angle_deg))
+    while len(records) > 2:
+        n = len(records)
+
+        def depth(i):
+            a, b = records[i], records[(i + 1) % n]
+            low, high = (a, b) if a.kind == "minimum" else (b, a)
+            return high.energy_hartree - low.energy_hartree
+
+        i = min(range(n), key=depth)
+        if depth(i) >= flat_hartree:
+            break
+        pair = [i, (i + 1) % n]
+        on_plane = [j for j in pair if _on_mirror_plane(records[j].angle_deg)]
+        if symmetric and on_plane:
+            centre = on_plane[0]
+            other = pair[1] if centre == pair[0] else pair[0]
+            mirror = (2 * centre - other) % n  # the neighbour on the far side of the plane
+            kept = records[centre]
+            kind = records[other].kind
+            merged = replace(kept, kind=kind, refinement=f"{kept.refinement} (flat {kind} region merged)")
+            drop = {other, mirror}
+            records = [merged if j == centre else r for j, r in enumerate(records) if j not in drop]
+        else:
+            records = [r for j, r in enumerate(records) if j not in pair]
+    return records
 
 
 def _neighbours(angle, others):
@@ -361,14 +407,14 @@ def scan_bond(molecule, bond, relaxer, start, settings):
     angles = np.array([p.angle_deg for p in good])
     energies = np.array([(p.energy_hartree - grid_reference) * HARTREE_KCAL_MOL for p in good])
     fit = fit_profile(angles, energies, symmetric=scanner.symmetric)
-    fitted = stationary_points(fit.series)
-    kinds = [s for s in fitted]
-    minima, maxima = [], []
-    for s in kinds:
-        others = [o.angle_deg for o in kinds if o.kind != s.kind] or [s.angle_deg + 180.0]
-        below, above = _neighbours(s.angle_deg, others)
-        record = scanner.refine(circle, s, (below, above))
-        (minima if s.kind == "minimum" else maxima).append(record)
+    fitted = stationary_points(fit.series, min_depth_kcal_mol=FIT_WIGGLE_KCAL_MOL)
+    refined = []
+    for s in fitted:
+        others = [o.angle_deg for o in fitted if o.kind != s.kind] or [s.angle_deg + 180.0]
+        refined.append(scanner.refine(circle, s, _neighbours(s.angle_deg, others)))
+    refined = merge_flat_extrema(refined, scanner.symmetric, FLAT_KCAL_MOL / HARTREE_KCAL_MOL)
+    minima = [r for r in refined if r.kind == "minimum"]
+    maxima = [r for r in refined if r.kind == "maximum"]
     refined_minima = [m.energy_hartree for m in minima if m.converged]
     reference = min([grid_reference, *refined_minima])
     shift = (grid_reference - reference) * HARTREE_KCAL_MOL
