@@ -130,3 +130,17 @@ def test_scan_efficiency_on_butadiene(butadiene_scan):
     assert statistics.median(computed) <= 8
     assert butadiene_scan.start_gradient_evaluations + bond.gradient_evaluations_total <= 300
     assert np.isfinite(bond.reference_energy_hartree)
+
+
+def test_chiral_molecule_gets_the_full_circle_from_both_directions():
+    # with a stereocentre E(phi) = E(-phi) no longer holds: every angle is computed, none mirrored
+    import torsionscan
+    from torsionscan.scan import ScanSettings
+
+    result = torsionscan.scan("C[C@H](F)C=CC=C", bond="5-6", settings=ScanSettings(step_deg=30, conformers=1))
+    bond = result.bonds[0]
+    assert not bond.symmetric
+    assert not any(p.mirrored for p in bond.points)
+    assert sorted(p.angle_deg for p in bond.points) == [float(a) for a in range(-150, 181, 30)]
+    for point in bond.points:
+        assert abs((point.measured_angle_deg - point.angle_deg + 180) % 360 - 180) <= 0.01
