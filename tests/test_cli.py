@@ -86,6 +86,8 @@ def test_bonds_command_lists_one_based_bonds(capsys):
         (["scan", "[CH2]/C=C/C=C"], 2, "unpaired"),
         (["scan", "C=CC=C[Fr]"], 2, ""),
         (["scan", "C=CC=C", "--step", "7"], 2, "divide 180"),
+        (["scan", "C=CC=C", "--temperature", "nan"], 2, "temperature"),
+        (["scan", "C=CC=C", "--scis-window", "120"], 2, "scis-window"),
     ],
 )
 def test_bad_input_gives_one_line_and_exit_code(capsys, argv, code, words):

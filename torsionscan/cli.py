@@ -61,15 +61,17 @@ def format_result(result, out_dir):
             if entry["symmetric_profile"] and key in shown:
                 continue
             shown.add(key)
+            flag = "" if b["converged"] else "  [refinement not converged]"
             lines.append(
                 f"  barrier {b['from_minimum_deg']:7.1f}° → {b['to_minimum_deg']:7.1f}° over "
-                f"{b['over_maximum_deg']:7.1f}°: {b['height_kcal_mol']:5.2f} kcal/mol ({b['height_kj_mol']:.1f} kJ/mol)"
+                f"{b['over_maximum_deg']:7.1f}°: {b['height_kcal_mol']:5.2f} kcal/mol ({b['height_kj_mol']:.1f} kJ/mol){flag}"
             )
         for p in entry["populations"]:
+            delta_g = p["delta_g_scis_minus_strans_kcal_mol"]
             lines.append(
                 f"  {p['temperature_k']:g} K: s-cis {100 * p['s_cis']:.1f}%, s-trans {100 * p['s_trans']:.1f}%, "
                 f"|φ| ≤ {p['scis_window_deg']:g}° {100 * p['scis_window']:.2f}%, "
-                f"ΔG(s-cis − s-trans) {p['delta_g_scis_minus_strans_kcal_mol']:+.2f} kcal/mol"
+                f"ΔG(s-cis − s-trans) " + (f"{delta_g:+.2f} kcal/mol" if delta_g is not None else "beyond numerical range")
             )
         fourier = entry["fourier"]
         flagged = entry["hysteresis"]["points"]
@@ -81,6 +83,13 @@ def format_result(result, out_dir):
             f" ({unconverged} not converged), median {entry['gradient_evaluations_per_point_median']:g}"
             f" gradients/point, {entry['gradient_evaluations_total']} in all; hysteresis: {hysteresis}"
         )
+        if not fourier["target_met"]:
+            lines.append(
+                f"  warning: the Fourier fit misses its {fourier['target_rmse_kcal_mol']} kcal/mol target; "
+                "fitted minima and populations are approximate: try a smaller --step"
+            )
+    for failed in summary["failed_bonds"]:
+        lines.append(f"bond {failed['bond']} FAILED: {failed['reason']}")
     lines.append(f"files: {out_dir}/")
     lines.append("Semi-empirical estimate (typical torsion error ~1 kcal/mol): confirm decisions at a higher level.")
     return "\n".join(lines)
@@ -97,7 +106,7 @@ def run_scan(args):
     out_dir = args.out or Path("results") / result.name
     write_results(result, out_dir)
     print(format_result(result, out_dir))
-    return 0
+    return 3 if result.failed_bonds else 0
 
 
 def run_bonds(args):
@@ -134,6 +143,7 @@ def run_demo(args):
         out_dir = args.out / result.name
         write_results(result, out_dir)
         print(format_result(result, out_dir) + "\n")
+        failures += bool(result.failed_bonds)
     print(f"{len(rows) - failures} of {len(rows)} compounds scanned; results in {args.out}/")
     return 3 if failures else 0
 

@@ -13,6 +13,7 @@ from scipy.optimize import brentq
 
 from .units import KCAL_KJ, wrap_deg
 
+FIT_TARGET_KCAL_MOL = 0.05  # default RMSE a profile fit aims for
 _SCAN_STEP_DEG = 0.25  # grid on which stationary points are bracketed
 _ZERO_SLOPE = 1e-12  # |dE/dphi| below this times the largest possible slope counts as zero
 _ROOT_XTOL_DEG = 1e-12
@@ -148,7 +149,7 @@ def fit_fourier(angles_deg, energies_kcal_mol, order, symmetric=False):
     )
 
 
-def fit_profile(angles_deg, energies_kcal_mol, symmetric, rmse_target_kcal_mol=0.05, max_order=8):
+def fit_profile(angles_deg, energies_kcal_mol, symmetric, rmse_target_kcal_mol=FIT_TARGET_KCAL_MOL, max_order=8):
     """Fourier fit of a scanned profile with the lowest order that reproduces it (deg, kcal/mol).
 
     Orders 1, 2, ... are tried up to the highest allowed one, which is max_order or, if

@@ -58,6 +58,7 @@ class Barrier:
     over_maximum_deg: float
     to_minimum_deg: float
     height_kcal_mol: float
+    converged: bool  # both end points' optimisations converged
 
 
 @dataclass(frozen=True)
@@ -96,3 +97,4 @@ class ScanResult:
     start_coords_bohr: np.ndarray = field(default=None, repr=False)
     start_gradient_evaluations: int = 0
     bonds: tuple[BondScan, ...] = ()
+    failed_bonds: tuple[tuple[str, str], ...] = ()  # (bond label, reason) of bonds whose scan failed

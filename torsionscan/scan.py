@@ -11,6 +11,7 @@ directions at half the cost; the other half of the circle is filled by mirror im
 """
 
 import logging
+import math
 import time
 from dataclasses import dataclass, field, replace
 
@@ -55,11 +56,13 @@ class ScanSettings:
         """Raise InputError for settings that cannot work."""
         steps = 180.0 / self.step_deg if self.step_deg > 0 else 0.0
         if not 1.0 <= self.step_deg <= 90.0 or abs(steps - round(steps)) > 1e-9:
-            raise InputError(f"--step {self.step_deg:g}: the grid step must divide 180 (e.g. 5, 10, 15, 30)")
+            raise InputError(
+                f"--step {self.step_deg:g}: the grid step must be 1 to 90 degrees and divide 180 (e.g. 5, 10, 15, 30)"
+            )
         if self.conformers < 1:
             raise InputError("--conformers must be at least 1")
-        if not self.temperatures_k or min(self.temperatures_k) <= 0:
-            raise InputError("--temperature values must be above 0 K")
+        if not self.temperatures_k or not all(math.isfinite(t) and t > 0 for t in self.temperatures_k):
+            raise InputError("--temperature values must be finite numbers above 0 K")
         if not 0.0 < self.scis_window_deg <= 90.0:
             raise InputError("--scis-window must be between 0 and 90 degrees")
 
@@ -279,7 +282,7 @@ class _BondScanner:
         if self.symmetric and fit_angle < -1e-9:
             mirrored = self.refine(circle, replace(stationary, angle_deg=-fit_angle), (-basin[1], -basin[0]))
             return replace(
-                mirrored, angle_deg=-mirrored.angle_deg, fit_angle_deg=fit_angle,
+                mirrored, angle_deg=_display_angle(-mirrored.angle_deg), fit_angle_deg=fit_angle,
                 coords_bohr=_mirror(mirrored.coords_bohr),
             )
         point, hessian = self.nearest(circle, fit_angle)
@@ -386,7 +389,8 @@ def _barriers(minima, maxima, reference):
             to = across[1] if top == above else across[0]
             to_angle = next(m.angle_deg for m in minima if m.fit_angle_deg == to)
             height = (max_by_angle[top].energy_hartree - minimum.energy_hartree) * HARTREE_KCAL_MOL
-            barriers.append(Barrier(minimum.angle_deg, max_by_angle[top].angle_deg, to_angle, height))
+            converged = minimum.converged and max_by_angle[top].converged
+            barriers.append(Barrier(minimum.angle_deg, max_by_angle[top].angle_deg, to_angle, height, converged))
     return barriers
 
 
@@ -411,7 +415,14 @@ def scan_bond(molecule, bond, relaxer, start, settings):
     refined = []
     for s in fitted:
         others = [o.angle_deg for o in fitted if o.kind != s.kind] or [s.angle_deg + 180.0]
-        refined.append(scanner.refine(circle, s, _neighbours(s.angle_deg, others)))
+        try:
+            refined.append(scanner.refine(circle, s, _neighbours(s.angle_deg, others)))
+        except CalculationError as error:
+            point, _ = scanner.nearest(circle, s.angle_deg)
+            refined.append(StationaryRecord(
+                s.kind, point.angle_deg, s.angle_deg, point.energy_hartree,
+                f"refinement failed ({error}); nearest grid point used", False, point.coords_bohr,
+            ))
     refined = merge_flat_extrema(refined, scanner.symmetric, FLAT_KCAL_MOL / HARTREE_KCAL_MOL)
     minima = [r for r in refined if r.kind == "minimum"]
     maxima = [r for r in refined if r.kind == "maximum"]
@@ -454,11 +465,19 @@ def scan(source, *, bond=None, name=None, charge=None, unpaired_electrons=0, rec
     )
     relaxer = Relaxer(engine, molecule.numbers)
     coords, energy, hessian, start_evaluations = relax_start(molecule, relaxer, settings)
-    scans = tuple(scan_bond(molecule, b, relaxer, (coords, energy, hessian), settings) for b in bonds)
+    scans, failed = [], []
+    for b in bonds:
+        try:
+            scans.append(scan_bond(molecule, b, relaxer, (coords, energy, hessian), settings))
+        except CalculationError as error:
+            log.warning("dihedral %s failed: %s", b.label, error)
+            failed.append((b.label, str(error)))
+    if not scans:
+        raise CalculationError("; ".join(f"bond {label}: {reason}" for label, reason in failed))
     return ScanResult(
         name=molecule.name, smiles=molecule.smiles, mol=molecule.mol, symbols=tuple(molecule.symbols),
         charge=molecule.charge, unpaired_electrons=molecule.unpaired_electrons,
         method=settings.method, engine=engine.backend, settings=settings.as_dict(),
         start_energy_hartree=energy, start_coords_bohr=coords,
-        start_gradient_evaluations=start_evaluations, bonds=scans,
+        start_gradient_evaluations=start_evaluations, bonds=tuple(scans), failed_bonds=tuple(failed),
     )

@@ -40,20 +40,23 @@ def profile_figure(result, bond, title=None):
         if bad:
             ax.plot(*zip(*bad), "x", color="red", ms=8, ls="none", label="not converged")
 
-    for m in bond.minima:
-        e = (m.energy_hartree - ref) * HARTREE_KCAL_MOL
-        ax.plot(m.angle_deg, e, "v", color="#2a7f3f", ms=8, zorder=5)
-        ax.annotate(f"min {m.angle_deg:.0f}°\n{e:.2f}", (m.angle_deg, e), textcoords="offset points",
-                    xytext=(0, -26), ha="center", fontsize=8, color="#2a7f3f")
-    for m in bond.maxima:
-        e = (m.energy_hartree - ref) * HARTREE_KCAL_MOL
-        ax.plot(m.angle_deg, e, "^", color="#b23a2e", ms=8, zorder=5)
-        ax.annotate(f"{m.angle_deg:.0f}°\n{e:.2f}", (m.angle_deg, e), textcoords="offset points",
-                    xytext=(0, 8), ha="center", fontsize=8, color="#b23a2e")
+    for records, marker, colour, prefix, offset in (
+        (bond.minima, "v", "#2a7f3f", "min ", -26), (bond.maxima, "^", "#b23a2e", "", 8)
+    ):
+        for m in records:
+            e = (m.energy_hartree - ref) * HARTREE_KCAL_MOL
+            label = f"{prefix}{abs(m.angle_deg) if abs(m.angle_deg) > 179.5 else m.angle_deg:.0f}°\n{e:.2f}"
+            # a point at +-180 deg sits on both edges of the plot: mark both, label the inner side
+            places = [-180.0, 180.0] if abs(m.angle_deg) > 179.5 else [m.angle_deg]
+            for x in places:
+                ax.plot(x, e, marker, color=colour, ms=8, zorder=5, clip_on=False)
+                align = "left" if x == -180.0 else ("right" if x == 180.0 and len(places) == 2 else "center")
+                ax.annotate(label, (x, e), textcoords="offset points", xytext=(0, offset), ha=align,
+                            fontsize=8, color=colour)
 
-    if populations:
-        ax.plot([], [], " ", label=(f"{populations.temperature_k:g} K: s-cis {100 * populations.s_cis:.1f}%, "
-                                    f"s-trans {100 * populations.s_trans:.1f}%, window {100 * populations.scis_window:.1f}%"))
+    for p in bond.populations:
+        ax.plot([], [], " ", label=(f"{p.temperature_k:g} K: s-cis {100 * p.s_cis:.1f}%, "
+                                    f"s-trans {100 * p.s_trans:.1f}%, window {100 * p.scis_window:.1f}%"))
     ax.set_xlim(-180, 180)
     ax.set_xticks(range(-180, 181, 45))
     ax.set_xlabel("dihedral φ / degrees   (0 = s-cis, ±180 = s-trans)")

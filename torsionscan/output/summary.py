@@ -6,6 +6,7 @@ import math
 import statistics
 
 from .. import __version__
+from ..profile import FIT_TARGET_KCAL_MOL
 from ..records import SCHEMA_VERSION
 from ..units import HARTREE_KCAL_MOL, KCAL_KJ
 
@@ -19,6 +20,12 @@ POPULATION_NOTE = (
     "s_cis is |dihedral| < 90 deg, s_trans is |dihedral| > 90 deg, scis_window is |dihedral| <= the window. "
     "Zero-point energy, vibrational entropy differences between conformers, quantum effects and solvent are not included."
 )
+
+
+def _num(value, digits):
+    """A JSON-safe rounded number: None for NaN or infinity (JSON has no such values)."""
+    value = float(value)
+    return round(value, digits) if math.isfinite(value) else None
 
 
 def _rel(energy_hartree, reference_hartree):
@@ -52,7 +59,7 @@ def bond_dict(result, bond):
     for p in bond.points:
         kcal, kj = _rel(p.energy_hartree, ref)
         entry = {
-            "angle_deg": p.angle_deg, "measured_angle_deg": round(p.measured_angle_deg, 5),
+            "angle_deg": p.angle_deg, "measured_angle_deg": _num(p.measured_angle_deg, 5),
             "energy_rel_kcal_mol": kcal, "energy_rel_kj_mol": kj,
             "fit_kcal_mol": round(float(series.value(p.angle_deg)), 5),
             "gradient_evaluations": p.gradient_evaluations, "converged": p.converged, "mirrored": p.mirrored,
@@ -73,6 +80,8 @@ def bond_dict(result, bond):
             "order": series.order,
             "symmetric": bond.fit.symmetric,
             "rmse_kcal_mol": round(bond.fit.rmse_kcal_mol, 5),
+            "target_rmse_kcal_mol": FIT_TARGET_KCAL_MOL,
+            "target_met": bond.fit.rmse_kcal_mol <= FIT_TARGET_KCAL_MOL,
             "max_residual_kcal_mol": round(bond.fit.max_residual_kcal_mol, 5),
             "series_kcal_mol": {
                 "form": "E = constant + sum_n [cos_n cos(n phi) + sin_n sin(n phi)]",
@@ -93,13 +102,13 @@ def bond_dict(result, bond):
         "barriers": [
             {"from_minimum_deg": round(b.from_minimum_deg, 3), "over_maximum_deg": round(b.over_maximum_deg, 3),
              "to_minimum_deg": round(b.to_minimum_deg, 3), "height_kcal_mol": round(b.height_kcal_mol, 4),
-             "height_kj_mol": round(b.height_kcal_mol * KCAL_KJ, 4)}
+             "height_kj_mol": round(b.height_kcal_mol * KCAL_KJ, 4), "converged": b.converged}
             for b in bond.barriers
         ],
         "populations": [
             {"temperature_k": p.temperature_k, "s_cis": p.s_cis, "s_trans": p.s_trans,
              "scis_window": p.scis_window, "scis_window_deg": p.scis_window_deg,
-             "delta_g_scis_minus_strans_kcal_mol": p.delta_g_kcal_mol}
+             "delta_g_scis_minus_strans_kcal_mol": _num(p.delta_g_kcal_mol, 4)}
             for p in bond.populations
         ],
         "populations_note": POPULATION_NOTE,
@@ -135,6 +144,7 @@ def summary_dict(result):
             "gradient_evaluations": result.start_gradient_evaluations,
         },
         "bonds": [bond_dict(result, b) for b in result.bonds],
+        "failed_bonds": [{"bond": label, "reason": reason} for label, reason in result.failed_bonds],
     }
 
 
@@ -146,7 +156,7 @@ def write_summary(result, path):
 def write_profile_table(bond_entry, path):
     """Write one dihedral's points (from its summary entry) as CSV."""
     columns = ["angle_deg", "measured_angle_deg", "energy_rel_kcal_mol", "energy_rel_kj_mol", "fit_kcal_mol",
-               "converged", "gradient_evaluations", "mirrored"]
+               "converged", "gradient_evaluations", "mirrored", "failure"]
     with path.open("w", newline="") as handle:
         writer = csv.DictWriter(handle, fieldnames=columns, extrasaction="ignore")
         writer.writeheader()
