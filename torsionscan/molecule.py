@@ -71,10 +71,6 @@ class TorsionBond:
         """1-based bond label as used on the command line, e.g. "3-4"."""
         return f"{self.atoms[1] + 1}-{self.atoms[2] + 1}"
 
-    @property
-    def atoms_1based(self):
-        return tuple(a + 1 for a in self.atoms)
-
 
 def safe_name(text):
     """A file-system-safe name derived from free text (SMILES, titles)."""

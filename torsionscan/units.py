@@ -10,19 +10,8 @@ import math
 BOHR_ANGSTROM = 0.529177210903  # Angstrom per Bohr
 ANGSTROM_BOHR = 1.0 / BOHR_ANGSTROM
 HARTREE_KCAL_MOL = 627.5094740631  # kcal/mol per Hartree
-HARTREE_KJ_MOL = 2625.4996394799  # kJ/mol per Hartree
 KCAL_KJ = 4.184  # kJ per kcal (thermochemical calorie)
 GAS_CONSTANT_KCAL_MOL_K = 8.314462618e-3 / KCAL_KJ  # kcal/(mol K)
-
-
-def hartree_to_kcal_mol(energy_hartree):
-    """Hartree -> kcal/mol (works on floats and numpy arrays)."""
-    return energy_hartree * HARTREE_KCAL_MOL
-
-
-def kcal_mol_to_kj_mol(energy_kcal_mol):
-    """kcal/mol -> kJ/mol."""
-    return energy_kcal_mol * KCAL_KJ
 
 
 def rt_kcal_mol(temperature_k):
