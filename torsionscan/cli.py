@@ -42,12 +42,9 @@ def _settings(args):
     )
 
 
-def format_result(result, out_dir):
-    """Readable terminal summary of a ScanResult."""
-    from .output import summary_dict
-
-    summary = summary_dict(result)
-    lines = [f"{result.name}  {result.smiles}  — {result.method} via {result.engine}, gas phase"]
+def format_summary(summary, out_dir):
+    """Readable terminal report of a scan summary (output.summary_dict)."""
+    lines = [f"{summary['name']}  {summary['smiles']}  — {summary['method']} via {summary['engine']}, gas phase"]
     for entry in summary["bonds"]:
         atoms = "-".join(str(a) for a in entry["dihedral_atoms"])
         kind = "conjugated" if entry["conjugated"] else "chosen"
@@ -95,18 +92,22 @@ def format_result(result, out_dir):
     return "\n".join(lines)
 
 
-def run_scan(args):
+def _write_and_report(result, out_dir):
+    """Write a result's files, print its report; True if some bond failed."""
     from .output import write_results
+
+    print(format_summary(write_results(result, out_dir), out_dir))
+    return bool(result.failed_bonds)
+
+
+def run_scan(args):
     from .scan import scan
 
     result = scan(
         args.molecule, bond=args.bond, name=args.name, charge=args.charge,
         unpaired_electrons=args.unpaired_electrons, record=args.record, settings=_settings(args),
     )
-    out_dir = args.out or Path("results") / result.name
-    write_results(result, out_dir)
-    print(format_result(result, out_dir))
-    return 3 if result.failed_bonds else 0
+    return 3 if _write_and_report(result, args.out or Path("results") / result.name) else 0
 
 
 def run_bonds(args):
@@ -125,7 +126,6 @@ def run_bonds(args):
 
 def run_demo(args):
     """Scan every compound of a demo list (CSV with name,smiles columns); failures do not stop the rest."""
-    from .output import write_results
     from .scan import scan
 
     if not args.list.is_file():
@@ -140,10 +140,8 @@ def run_demo(args):
             failures += 1
             print(f"{row['name']}: failed: {error}")
             continue
-        out_dir = args.out / result.name
-        write_results(result, out_dir)
-        print(format_result(result, out_dir) + "\n")
-        failures += bool(result.failed_bonds)
+        failures += _write_and_report(result, args.out / result.name)
+        print()
     print(f"{len(rows) - failures} of {len(rows)} compounds scanned; results in {args.out}/")
     return 3 if failures else 0
 

@@ -1,4 +1,4 @@
-"""Internal-coordinate values and their Cartesian derivatives, rigid rotations.
+"""Internal-coordinate values and their Cartesian derivatives, rigid rotations, orthonormal bases.
 
 Coordinates are (N, 3) arrays in Bohr unless a function says otherwise; angles are radians.
 The dihedral follows the IUPAC sign convention (the same as RDKit): looking along j->k, the
@@ -88,6 +88,14 @@ def rigid_body_directions(coords):
     for axis in np.eye(3):
         modes.append(np.tile(axis, n))
         modes.append(np.cross(axis, centred).ravel())
-    q, r = np.linalg.qr(np.array(modes).T)
+    return orthonormal_rows(np.array(modes))
+
+
+def orthonormal_rows(rows):
+    """Orthonormal basis (k, n) of the span of rows (m, n), dropping dependent rows; (0, n) if none."""
+    rows = np.asarray(rows, dtype=float)
+    if len(rows) == 0:
+        return rows
+    q, r = np.linalg.qr(rows.T)
     keep = np.abs(np.diag(r)) > 1e-8 * max(1.0, np.abs(r).max())
     return q[:, keep].T

@@ -15,6 +15,7 @@ from typing import Callable, Protocol, Sequence
 import numpy as np
 
 from .errors import CalculationError
+from .geometry import orthonormal_rows
 
 
 class Constraint(Protocol):
@@ -59,15 +60,6 @@ _CONSTRAINT_TOLERANCE = 1e-10  # radians (or whatever unit the constraint uses)
 _MIN_CURVATURE = 1e-3  # floor on |eigenvalue| of the model Hessian in the step
 _MAX_TRUST = 0.5
 _MIN_STEP = 1e-8
-
-
-def _orthonormal_rows(rows):
-    """Orthonormal basis (k, n) of the span of `rows`; empty (0, n) if none."""
-    if len(rows) == 0:
-        return rows
-    q, r = np.linalg.qr(np.asarray(rows).T)
-    keep = np.abs(np.diag(r)) > 1e-10
-    return q[:, keep].T
 
 
 def restore_constraints(x, constraints, max_iterations=50):
@@ -131,7 +123,7 @@ def minimize(
         rows = _jacobian(constraints, x)
         if invariant_directions is not None:
             rows = np.vstack([rows, invariant_directions(x)])
-        basis = _orthonormal_rows(rows)
+        basis = orthonormal_rows(rows)
         projected = gradient - basis.T @ (basis @ gradient) if len(basis) else gradient
         return projected, basis
 

@@ -13,7 +13,7 @@ directions at half the cost; the other half of the circle is filled by mirror im
 import logging
 import math
 import time
-from dataclasses import dataclass, field, replace
+from dataclasses import asdict, dataclass, field, replace
 
 import numpy as np
 
@@ -67,15 +67,8 @@ class ScanSettings:
             raise InputError("--scis-window must be between 0 and 90 degrees")
 
     def as_dict(self):
-        """Plain-data form for summaries."""
-        return {
-            "step_deg": self.step_deg, "conformers": self.conformers, "seed": self.seed,
-            "method": self.method, "engine": self.engine, "temperatures_k": list(self.temperatures_k),
-            "scis_window_deg": self.scis_window_deg, "hysteresis_kcal_mol": self.hysteresis_kcal_mol,
-            "point_convergence": vars(self.point_convergence).copy(),
-            "start_convergence": vars(self.start_convergence).copy(),
-            "refine_convergence": vars(self.refine_convergence).copy(),
-        }
+        """Plain-data form for summaries (every field, nested settings included)."""
+        return asdict(self)
 
 
 class DihedralConstraint:
@@ -158,14 +151,17 @@ def relax_start(molecule, relaxer, settings):
     return best.x.reshape(-1, 3), best.energy, best.hessian, evaluations
 
 
-def _point(result, atoms, target_deg, failure=""):
+def _dihedral_deg(coords, atoms):
+    """Dihedral of coords ((N, 3) or flat, Bohr) in degrees, (-180, 180]."""
+    return float(np.degrees(geometry.dihedral(np.reshape(coords, (-1, 3)), *atoms)))
+
+
+def _point(result, atoms, target_deg):
     coords = result.x.reshape(-1, 3)
     return ScanPoint(
-        angle_deg=float(target_deg),
-        measured_angle_deg=float(np.degrees(geometry.dihedral(coords, *atoms))),
+        angle_deg=float(target_deg), measured_angle_deg=_dihedral_deg(coords, atoms),
         energy_hartree=result.energy, converged=result.converged,
-        gradient_evaluations=result.evaluations, max_gradient=result.max_gradient,
-        coords_bohr=coords, failure=failure,
+        gradient_evaluations=result.evaluations, max_gradient=result.max_gradient, coords_bohr=coords,
     )
 
 
@@ -231,7 +227,7 @@ class _BondScanner:
 
     def sweep(self, start_coords, start_hessian):
         """Run all sweeps from the start structure."""
-        phi0 = np.degrees(geometry.dihedral(start_coords, *self.atoms))
+        phi0 = _dihedral_deg(start_coords, self.atoms)
         if self.symmetric and phi0 < 0:
             start_coords, start_hessian = _mirror(start_coords), _mirror_hessian(start_hessian)
             phi0 = -phi0
@@ -289,7 +285,7 @@ class _BondScanner:
         convergence = self.settings.refine_convergence
         if stationary.kind == "minimum":
             result = self.relaxer.relax(point.coords_bohr, convergence, hessian)
-            angle = np.degrees(geometry.dihedral(result.x.reshape(-1, 3), *self.atoms))
+            angle = _dihedral_deg(result.x, self.atoms)
             if _in_arc(angle, *basin):
                 return _stationary(result, self.atoms, "minimum", fit_angle, "free optimisation")
             how = "constrained at the fitted angle (free optimisation left the basin)"
@@ -320,7 +316,7 @@ def _in_arc(angle, low, high):
 def _stationary(result, atoms, kind, fit_angle, how):
     coords = result.x.reshape(-1, 3)
     return StationaryRecord(
-        kind, _display_angle(np.degrees(geometry.dihedral(coords, *atoms))), fit_angle,
+        kind, _display_angle(_dihedral_deg(coords, atoms)), fit_angle,
         result.energy, how, result.converged, coords,
     )
 

@@ -28,11 +28,10 @@ def _atomic(path, write):
 
 
 def write_results(result, out_dir):
-    """Write all files of a ScanResult into out_dir; returns the list of paths written."""
+    """Write all files of a ScanResult into out_dir; returns its summary (see summary_dict)."""
     out_dir = Path(out_dir)
     out_dir.mkdir(parents=True, exist_ok=True)
     summary = summary_dict(result)
-    written = []
     for bond, entry in zip(result.bonds, summary["bonds"]):
         stem = f"bond_{bond_label(bond.dihedral_atoms)}"
         for name, write in (
@@ -41,13 +40,10 @@ def write_results(result, out_dir):
             (f"{stem}_minima.sdf", lambda p, b=bond: write_minima_sdf(result, b, p)),
         ):
             _atomic(out_dir / name, write)
-            written.append(out_dir / name)
         figure = profile_figure(result, bond)
         for suffix in ("png", "svg"):
             path = out_dir / f"{stem}_profile.{suffix}"
             _atomic(path, lambda p, s=suffix: figure.savefig(p, format=s))
-            written.append(path)
         plt.close(figure)
-    _atomic(out_dir / "summary.json", lambda p: write_summary(result, p))
-    written.append(out_dir / "summary.json")
-    return written
+    _atomic(out_dir / "summary.json", lambda p: write_summary(summary, p))
+    return summary

@@ -148,9 +148,9 @@ def summary_dict(result):
     }
 
 
-def write_summary(result, path):
-    """Write the summary JSON."""
-    path.write_text(json.dumps(summary_dict(result), indent=2, allow_nan=False) + "\n")
+def write_summary(summary, path):
+    """Write a summary (from summary_dict) as JSON."""
+    path.write_text(json.dumps(summary, indent=2, allow_nan=False) + "\n")
 
 
 def write_profile_table(bond_entry, path):
