@@ -45,7 +45,8 @@ def profile_figure(result, bond, title=None):
     ):
         for m in records:
             e = (m.energy_hartree - ref) * HARTREE_KCAL_MOL
-            label = f"{prefix}{abs(m.angle_deg) if abs(m.angle_deg) > 179.5 else m.angle_deg:.0f}°\n{e:.2f}"
+            shown = round(abs(m.angle_deg) if abs(m.angle_deg) > 179.5 else m.angle_deg)  # int: no "-0"
+            label = f"{prefix}{shown}°\n{e:.2f}"
             # a point at +-180 deg sits on both edges of the plot: mark both, label the inner side
             places = [-180.0, 180.0] if abs(m.angle_deg) > 179.5 else [m.angle_deg]
             for x in places:
