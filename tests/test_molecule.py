@@ -115,3 +115,13 @@ def test_start_structures_are_deterministic():
 def test_stereocentres_are_detected():
     assert load_molecule("C[C@H](F)C=CC=C").has_stereocentres
     assert not load_molecule("C=CC=C").has_stereocentres
+
+
+def test_an_rdkit_molecule_is_accepted_with_its_coordinates_and_title():
+    mol = Chem.AddHs(Chem.MolFromSmiles("C=CC=O"))
+    AllChem.EmbedMolecule(mol, randomSeed=7)
+    mol.SetProp("_Name", "acrolein from a record")
+    molecule = load_molecule(mol)
+    assert molecule.name == "acrolein_from_a_record"
+    assert molecule.smiles == "C=CC=O"
+    np.testing.assert_allclose(molecule.input_coords_angstrom, mol.GetConformer().GetPositions())

@@ -1,4 +1,4 @@
-"""Scan bookkeeping without an engine: sweep coverage and merging of flat stationary pairs."""
+"""Scan bookkeeping: sweep coverage, merging of flat stationary pairs, the time limit."""
 
 import numpy as np
 import pytest
@@ -70,3 +70,15 @@ def test_flat_pair_away_from_a_plane_is_removed_as_a_pair():
     ]
     merged = merge_flat_extrema(records, symmetric=False, flat_hartree=0.01 / HARTREE_KCAL_MOL)
     assert sorted((r.angle_deg, r.kind) for r in merged) == [(-120.0, "minimum"), (-20.0, "maximum")]
+
+
+def test_a_time_limit_stops_a_real_scan_between_gradients():
+    import time
+
+    from torsionscan import scan
+    from torsionscan.errors import TimeLimitExceeded
+
+    started = time.monotonic()
+    with pytest.raises(TimeLimitExceeded, match="time limit reached after"):
+        scan("C=CC=Cc1ccccc1", time_limit_s=0.3)
+    assert time.monotonic() - started < 3.0  # one gradient of this molecule takes milliseconds

@@ -20,3 +20,9 @@ class CalculationError(TorsionScanError):
     """A quantum-chemical calculation or an optimisation failed."""
 
     exit_code = 3
+
+
+class TimeLimitExceeded(TorsionScanError):
+    """A compound's calculations ran past the time allowed for it (checked between gradients)."""
+
+    exit_code = 3

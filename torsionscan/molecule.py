@@ -119,17 +119,23 @@ def _read_xyz(path, charge):
     return mol
 
 
-def load_molecule(source, *, name=None, charge=None, unpaired_electrons=0, record=1):
-    """Read a molecule from a SMILES string or a MOL/SDF/XYZ file path.
+def _input_coords(mol):
+    """Angstrom coordinates of a molecule's 3D conformer, or None."""
+    if mol.GetNumConformers() and mol.GetConformer().Is3D():
+        return mol.GetConformer().GetPositions()
+    return None
 
-    charge: total charge; default is the sum of formal charges (SMILES/SDF) or 0 (XYZ).
-    record: 1-based record number in a multi-record SDF.
-    """
+
+def _read_source(source, charge, record):
+    """(RDKit molecule, 3D coordinates or None, default name, description for messages)."""
+    if isinstance(source, Chem.Mol):
+        mol = Chem.Mol(source)
+        title = mol.GetProp("_Name").strip() if mol.HasProp("_Name") else ""
+        return mol, _input_coords(mol), title or Chem.MolToSmiles(Chem.RemoveHs(mol)), "the structure"
     source = str(source).strip()
     if not source:
         raise InputError("no molecule given; pass a SMILES string or a MOL/SDF/XYZ file")
     path = Path(source)
-    coords = None
     if path.is_file():
         kind = _FILE_SUFFIXES.get(path.suffix.lower())
         if kind is None:
@@ -138,18 +144,22 @@ def load_molecule(source, *, name=None, charge=None, unpaired_electrons=0, recor
             mol, title = _read_sdf(path, record)
         else:
             mol, title = _read_xyz(path, charge or 0), ""
-        if mol.GetNumConformers() and mol.GetConformer().Is3D():
-            coords = mol.GetConformer().GetPositions()
-        default_name = title or path.stem
-        what = str(path)
-    else:
-        mol = Chem.MolFromSmiles(source)
-        if mol is None and _looks_like_path(source):
-            raise InputError(f"file not found: {source}")
-        if mol is None:
-            raise InputError(f"could not read {source!r} as SMILES (nor is it an existing file); check the string")
-        default_name = safe_name(source)
-        what = "the SMILES"
+        return mol, _input_coords(mol), title or path.stem, str(path)
+    mol = Chem.MolFromSmiles(source)
+    if mol is None and _looks_like_path(source):
+        raise InputError(f"file not found: {source}")
+    if mol is None:
+        raise InputError(f"could not read {source!r} as SMILES (nor is it an existing file); check the string")
+    return mol, None, source, "the SMILES"
+
+
+def load_molecule(source, *, name=None, charge=None, unpaired_electrons=0, record=1):
+    """Read a molecule from a SMILES string, a MOL/SDF/XYZ file path or an RDKit molecule.
+
+    charge: total charge; default is the sum of formal charges (SMILES/SDF/RDKit) or 0 (XYZ).
+    record: 1-based record number in a multi-record SDF.
+    """
+    mol, coords, default_name, what = _read_source(source, charge, record)
     _check_single_molecule(mol, what)
     had_hydrogens = any(atom.GetAtomicNum() == 1 for atom in mol.GetAtoms())
     mol = Chem.AddHs(mol, addCoords=coords is not None)

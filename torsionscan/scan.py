@@ -19,7 +19,7 @@ import numpy as np
 
 from . import geometry
 from .engines import make_engine
-from .errors import CalculationError, InputError
+from .errors import CalculationError, InputError, TimeLimitExceeded
 from .modelhessian import lindh_hessian
 from .molecule import find_conjugated_bonds, load_molecule, select_bond, side_atoms, starting_structures
 from .optimize import Convergence, minimize
@@ -88,11 +88,14 @@ class DihedralConstraint:
 class Relaxer:
     """Geometry optimisations of one molecule with one engine (Bohr, Hartree)."""
 
-    def __init__(self, engine, numbers):
+    def __init__(self, engine, numbers, deadline=None):
         self.engine = engine
         self.numbers = numbers
+        self.deadline = deadline  # time.monotonic() value after which no new gradient is started
 
     def _objective(self, x):
+        if self.deadline is not None and time.monotonic() > self.deadline:
+            raise TimeLimitExceeded(f"time limit reached after {self.engine.evaluations} gradient evaluations")
         energy, gradient = self.engine.energy_and_gradient(x.reshape(-1, 3))
         return energy, gradient.ravel()
 
@@ -441,12 +444,15 @@ def scan_bond(molecule, bond, relaxer, start, settings):
     )
 
 
-def scan(source, *, bond=None, name=None, charge=None, unpaired_electrons=0, record=1, settings=None):
+def scan(source, *, bond=None, name=None, charge=None, unpaired_electrons=0, record=1, settings=None,
+         time_limit_s=None):
     """Relaxed torsion scan of every conjugated single bond of a molecule (or the one `bond` names).
 
-    source: SMILES string or MOL/SDF/XYZ path; bond: 1-based "j-k" or "i-j-k-l".
-    Returns a ScanResult; raises InputError or CalculationError.
+    source: SMILES string, MOL/SDF/XYZ path or RDKit molecule; bond: 1-based "j-k" or "i-j-k-l".
+    time_limit_s: wall-clock seconds allowed for the whole molecule (checked before each gradient).
+    Returns a ScanResult; raises InputError, CalculationError or TimeLimitExceeded.
     """
+    deadline = None if time_limit_s is None else time.monotonic() + time_limit_s
     settings = settings or ScanSettings()
     settings.check()
     molecule = load_molecule(source, name=name, charge=charge, unpaired_electrons=unpaired_electrons, record=record)
@@ -459,7 +465,7 @@ def scan(source, *, bond=None, name=None, charge=None, unpaired_electrons=0, rec
         molecule.numbers, charge=molecule.charge, unpaired_electrons=molecule.unpaired_electrons,
         method=settings.method, backend=settings.engine,
     )
-    relaxer = Relaxer(engine, molecule.numbers)
+    relaxer = Relaxer(engine, molecule.numbers, deadline)
     coords, energy, hessian, start_evaluations = relax_start(molecule, relaxer, settings)
     scans, failed = [], []
     for b in bonds:

@@ -1,7 +1,9 @@
 """Writers for scan results: summary JSON, profile CSV, XYZ/SDF structures, plots.
 
-Every file is written to a temporary name in the result folder and moved into place, so a
-crash never leaves a half-written file behind.
+A compound's folder is written from two plain-data parts, so a stored run can rebuild it:
+its summary (summary_dict) and the structure texts of each bond (structure_texts).
+Every file is written to a temporary name in the folder and moved into place, so a crash
+never leaves a half-written file behind.
 """
 
 import os
@@ -11,12 +13,13 @@ from pathlib import Path
 import matplotlib.pyplot as plt
 
 from .plot import profile_figure
-from .structures import write_minima_sdf, write_scan_xyz
+from .structures import minima_sdf_text, scan_xyz_text
 from .summary import bond_label, summary_dict, write_profile_table, write_summary
 
 
-def _atomic(path, write):
+def atomic_write(path, write):
     """Run write(temporary_path) and move the result to `path`."""
+    path = Path(path)
     handle, temporary = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=path.suffix)
     os.close(handle)
     temporary = Path(temporary)
@@ -27,23 +30,41 @@ def _atomic(path, write):
         temporary.unlink(missing_ok=True)
 
 
-def write_results(result, out_dir):
-    """Write all files of a ScanResult into out_dir; returns its summary (see summary_dict)."""
+def structure_texts(result):
+    """{bond label: {"scan_xyz": text, "minima_sdf": text}} for every scanned bond of a ScanResult."""
+    return {
+        bond_label(bond.dihedral_atoms): {
+            "scan_xyz": scan_xyz_text(result, bond), "minima_sdf": minima_sdf_text(result, bond),
+        }
+        for bond in result.bonds
+    }
+
+
+def bond_stem(label):
+    """File name stem of one bond's files, e.g. "bond_2-3"."""
+    return f"bond_{label}"
+
+
+def write_compound_folder(summary, structures, out_dir, figure_formats=("png", "svg")):
+    """Write a compound's files from its summary and structure texts into out_dir."""
     out_dir = Path(out_dir)
     out_dir.mkdir(parents=True, exist_ok=True)
-    summary = summary_dict(result)
-    for bond, entry in zip(result.bonds, summary["bonds"]):
-        stem = f"bond_{bond_label(bond.dihedral_atoms)}"
-        for name, write in (
-            (f"{stem}_profile.csv", lambda p, e=entry: write_profile_table(e, p)),
-            (f"{stem}_scan.xyz", lambda p, b=bond: write_scan_xyz(result, b, p)),
-            (f"{stem}_minima.sdf", lambda p, b=bond: write_minima_sdf(result, b, p)),
-        ):
-            _atomic(out_dir / name, write)
-        figure = profile_figure(result, bond)
-        for suffix in ("png", "svg"):
-            path = out_dir / f"{stem}_profile.{suffix}"
-            _atomic(path, lambda p, s=suffix: figure.savefig(p, format=s))
+    for entry in summary["bonds"]:
+        stem = bond_stem(entry["bond"])
+        texts = structures.get(entry["bond"], {})
+        atomic_write(out_dir / f"{stem}_profile.csv", lambda p, e=entry: write_profile_table(e, p))
+        for key, suffix in (("scan_xyz", "_scan.xyz"), ("minima_sdf", "_minima.sdf")):
+            if key in texts:
+                atomic_write(out_dir / f"{stem}{suffix}", lambda p, t=texts[key]: p.write_text(t))
+        figure = profile_figure(summary["name"], entry)
+        for suffix in figure_formats:
+            atomic_write(out_dir / f"{stem}_profile.{suffix}", lambda p, s=suffix: figure.savefig(p, format=s))
         plt.close(figure)
-    _atomic(out_dir / "summary.json", lambda p: write_summary(summary, p))
+    atomic_write(out_dir / "summary.json", lambda p: write_summary(summary, p))
+
+
+def write_results(result, out_dir):
+    """Write all files of a ScanResult into out_dir; returns its summary (see summary_dict)."""
+    summary = summary_dict(result)
+    write_compound_folder(summary, structure_texts(result), out_dir)
     return summary

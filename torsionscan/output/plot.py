@@ -1,71 +1,75 @@
 """The profile figure: scan points, fitted curve, s-cis/s-trans regions, minima and barriers."""
 
-import math
-
 import matplotlib
 
 matplotlib.use("Agg")
 import matplotlib.pyplot as plt  # noqa: E402
 import numpy as np  # noqa: E402
 
-from ..units import HARTREE_KCAL_MOL  # noqa: E402
+from ..profile import FourierSeries  # noqa: E402
 
 _SCIS_SHADE = "#dfe9f5"
 _STRANS_SHADE = "#f6eadb"
 _WINDOW_SHADE = "#b9d0ea"
 
 
-def profile_figure(result, bond, title=None):
-    """A matplotlib Figure of one dihedral's relaxed profile (energies relative, kcal/mol)."""
-    ref = bond.reference_energy_hartree
+def profile_figure(name, entry, title=None):
+    """A matplotlib Figure of one dihedral's relaxed profile from its summary entry (output.summary.bond_dict).
+
+    Drawn from the summary alone (relative energies in kcal/mol), so a stored run can be re-plotted.
+    """
+    coefficients = entry["fourier"]["series_kcal_mol"]
+    series = FourierSeries(coefficients["constant"], coefficients["cos"], coefficients["sin"])
     fig, ax = plt.subplots(figsize=(8.0, 6.0), dpi=110)
-    populations = bond.populations[0] if bond.populations else None
-    window = populations.scis_window_deg if populations else 30.0
+    populations = entry["populations"]
+    window = populations[0]["scis_window_deg"] if populations else 30.0
     ax.axvspan(-90, 90, color=_SCIS_SHADE, zorder=0, label="s-cis region (|φ| < 90°)")
     ax.axvspan(-window, window, color=_WINDOW_SHADE, zorder=0, label=f"near-planar s-cis window (|φ| ≤ {window:g}°)")
     ax.axvspan(-180, -90, color=_STRANS_SHADE, zorder=0, label="s-trans region (|φ| > 90°)")
     ax.axvspan(90, 180, color=_STRANS_SHADE, zorder=0)
 
     dense = np.linspace(-180, 180, 721)
-    ax.plot(dense, bond.fit.series.value(dense), color="#333333", lw=1.5,
-            label=f"Fourier fit, order {bond.fit.series.order} (RMSE {bond.fit.rmse_kcal_mol:.2f})")
-    for mirrored, marker, name in ((False, "o", "relaxed scan points"), (True, "o", "mirror images")):
-        pts = [p for p in bond.points if p.mirrored == mirrored and math.isfinite(p.energy_hartree)]
+    ax.plot(dense, series.value(dense), color="#333333", lw=1.5,
+            label=f"Fourier fit, order {series.order} (RMSE {entry['fourier']['rmse_kcal_mol']:.2f})")
+    for mirrored, legend in ((False, "relaxed scan points"), (True, "mirror images")):
+        pts = [p for p in entry["points"] if p["mirrored"] == mirrored and p["energy_rel_kcal_mol"] is not None]
         if not pts:
             continue
-        x = [p.angle_deg for p in pts]
-        y = [(p.energy_hartree - ref) * HARTREE_KCAL_MOL for p in pts]
-        ax.plot(x, y, marker, ms=5, mfc="white" if mirrored else "#1f5fa8", mec="#1f5fa8", ls="none", label=name)
-        bad = [(a, e) for a, e, p in zip(x, y, pts) if not p.converged]
+        x = [p["angle_deg"] for p in pts]
+        y = [p["energy_rel_kcal_mol"] for p in pts]
+        ax.plot(x, y, "o", ms=5, mfc="white" if mirrored else "#1f5fa8", mec="#1f5fa8", ls="none", label=legend)
+        bad = [(p["angle_deg"], p["energy_rel_kcal_mol"]) for p in pts if not p["converged"]]
         if bad:
             ax.plot(*zip(*bad), "x", color="red", ms=8, ls="none", label="not converged")
 
     for records, marker, colour, prefix, offset in (
-        (bond.minima, "v", "#2a7f3f", "min ", -26), (bond.maxima, "^", "#b23a2e", "", 8)
+        (entry["minima"], "v", "#2a7f3f", "min ", -26), (entry["maxima"], "^", "#b23a2e", "", 8)
     ):
         for m in records:
-            e = (m.energy_hartree - ref) * HARTREE_KCAL_MOL
-            shown = round(abs(m.angle_deg) if abs(m.angle_deg) > 179.5 else m.angle_deg)  # int: no "-0"
+            angle, e = m["angle_deg"], m["energy_rel_kcal_mol"]
+            if e is None:
+                continue
+            shown = round(abs(angle) if abs(angle) > 179.5 else angle)  # int: no "-0"
             label = f"{prefix}{shown}°\n{e:.2f}"
             # a point at +-180 deg sits on both edges of the plot: mark both, label the inner side
-            places = [-180.0, 180.0] if abs(m.angle_deg) > 179.5 else [m.angle_deg]
+            places = [-180.0, 180.0] if abs(angle) > 179.5 else [angle]
             for x in places:
                 ax.plot(x, e, marker, color=colour, ms=8, zorder=5, clip_on=False)
                 align = "left" if x == -180.0 else ("right" if x == 180.0 and len(places) == 2 else "center")
                 ax.annotate(label, (x, e), textcoords="offset points", xytext=(0, offset), ha=align,
                             fontsize=8, color=colour)
 
-    for p in bond.populations:
-        ax.plot([], [], " ", label=(f"{p.temperature_k:g} K: s-cis {100 * p.s_cis:.1f}%, "
-                                    f"s-trans {100 * p.s_trans:.1f}%, window {100 * p.scis_window:.1f}%"))
+    for p in populations:
+        ax.plot([], [], " ", label=(f"{p['temperature_k']:g} K: s-cis {100 * p['s_cis']:.1f}%, "
+                                    f"s-trans {100 * p['s_trans']:.1f}%, window {100 * p['scis_window']:.1f}%"))
     ax.set_xlim(-180, 180)
     ax.set_xticks(range(-180, 181, 45))
     ax.set_xlabel("dihedral φ / degrees   (0 = s-cis, ±180 = s-trans)")
     ax.set_ylabel("relative energy / kcal mol⁻¹")
-    top = max(bond.fit.series.value(dense).max(), 1.0)
+    top = max(series.value(dense).max(), 1.0)
     ax.set_ylim(-0.12 * top - 0.3, 1.25 * top + 0.3)
-    label = f"{result.name}: dihedral {'-'.join(str(a + 1) for a in bond.dihedral_atoms)}"
-    ax.set_title(title or f"{label} — relaxed {result.method} scan (semi-empirical estimate)", fontsize=10)
+    label = f"{name}: dihedral {'-'.join(str(a) for a in entry['dihedral_atoms'])}"
+    ax.set_title(title or f"{label} — relaxed {entry['method']} scan (semi-empirical estimate)", fontsize=10)
     ax.legend(fontsize=7, loc="upper center", bbox_to_anchor=(0.5, -0.13), ncol=2, frameon=False)
     fig.tight_layout()
     return fig

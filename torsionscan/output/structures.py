@@ -1,5 +1,6 @@
 """Relaxed structures: the scan as a multi-frame XYZ, the minima as SDF."""
 
+import io
 import math
 
 from rdkit import Chem
@@ -15,8 +16,8 @@ def _xyz_frame(symbols, coords_bohr, comment):
     return "\n".join(lines) + "\n"
 
 
-def write_scan_xyz(result, bond, path):
-    """Computed (not mirrored) scan points, one frame each, angle and energy in the comment line."""
+def scan_xyz_text(result, bond):
+    """Computed (not mirrored) scan points as multi-frame XYZ text, angle and energy in each comment line."""
     frames = []
     for p in bond.points:
         if p.mirrored or not math.isfinite(p.energy_hartree):
@@ -27,12 +28,13 @@ def write_scan_xyz(result, bond, path):
             f"E={p.energy_hartree:.10f} Eh rel={rel:.4f} kcal/mol converged={'yes' if p.converged else 'no'}"
         )
         frames.append(_xyz_frame(result.symbols, p.coords_bohr, comment))
-    path.write_text("".join(frames))
+    return "".join(frames)
 
 
-def write_minima_sdf(result, bond, path):
-    """Refined minima as SDF records with angle and relative energy as data fields."""
-    writer = Chem.SDWriter(str(path))
+def minima_sdf_text(result, bond):
+    """Refined minima as SDF text: one record each, angle and relative energy as data fields."""
+    buffer = io.StringIO()
+    writer = Chem.SDWriter(buffer)
     for minimum in bond.minima:
         mol = Chem.Mol(result.mol)
         mol.RemoveAllConformers()
@@ -49,3 +51,4 @@ def write_minima_sdf(result, bond, path):
         mol.SetProp("method", result.method)
         writer.write(mol)
     writer.close()
+    return buffer.getvalue()
