@@ -2,15 +2,16 @@
 (2 = input problem, 3 = calculation failure); --debug shows the traceback instead."""
 
 import argparse
-import csv
 import logging
 import sys
 from pathlib import Path
 
 from . import __version__
-from .errors import InputError, TorsionScanError
+from .errors import TorsionScanError
 
 log = logging.getLogger("torsionscan")
+DEMO_LIST = Path("inputs/demo_compounds.csv")
+PARTIAL_FAILURE = 4  # exit status of a batch in which some compounds failed
 
 
 def _add_molecule_options(parser):
@@ -31,6 +32,18 @@ def _add_scan_options(parser):
     parser.add_argument("--method", choices=["GFN2-xTB", "GFN1-xTB"], default="GFN2-xTB")
     parser.add_argument("--engine", choices=["auto", "xtb-python", "tblite"], default="auto",
                         help="GFN-xTB implementation (default: xtb-python if installed, else tblite)")
+
+
+def _add_batch_options(parser):
+    parser.add_argument("--workers", type=int, default=None,
+                        help="parallel worker processes on this machine (default: number of cores)")
+    parser.add_argument("--threads-per-worker", type=int, default=1,
+                        help="OpenMP/BLAS threads in each worker (default 1)")
+    parser.add_argument("--cluster", metavar="ADDRESS",
+                        help="run on a Dask distributed scheduler, e.g. tcp://host:8786, instead of local workers")
+    parser.add_argument("--retry-failed", action="store_true", help="compute failed compounds again")
+    parser.add_argument("--timeout-per-compound", type=float, metavar="SECONDS",
+                        help="give up on a compound after this many seconds (checked between gradients)")
 
 
 def _settings(args):
@@ -124,26 +137,41 @@ def run_bonds(args):
     return 0
 
 
-def run_demo(args):
-    """Scan every compound of a demo list (CSV with name,smiles columns); failures do not stop the rest."""
-    from .scan import scan
+def _batch_options(args):
+    from .batch import BatchOptions
 
-    if not args.list.is_file():
-        raise InputError(f"demo list {args.list} not found; run from the repository root or pass the list path")
-    with args.list.open(newline="") as handle:
-        rows = [row for row in csv.DictReader(handle) if row.get("smiles")]
-    failures = 0
-    for row in rows:
-        try:
-            result = scan(row["smiles"], name=row["name"], settings=_settings(args))
-        except TorsionScanError as error:
-            failures += 1
-            print(f"{row['name']}: failed: {error}")
-            continue
-        failures += _write_and_report(result, args.out / result.name)
-        print()
-    print(f"{len(rows) - failures} of {len(rows)} compounds scanned; results in {args.out}/")
-    return 3 if failures else 0
+    return BatchOptions(
+        workers=args.workers, threads_per_worker=args.threads_per_worker, cluster=args.cluster,
+        retry_failed=args.retry_failed, timeout_per_compound_s=args.timeout_per_compound,
+    )
+
+
+def run_batch_command(args):
+    """Scan a compound list into a run folder, then write its table and report."""
+    from .batch import run_batch
+    from .output.progress import BatchProgress
+    from .output.report import write_run_report
+
+    out_dir = args.out or Path("results") / args.list.stem
+    outcome = run_batch(args.list, out_dir, _settings(args), _batch_options(args), BatchProgress(),
+                        command=" ".join(["torsionscan", *sys.argv[1:]]))
+    report, _ = write_run_report(out_dir)
+    counts = outcome.counts
+    print(f"{counts['done']} done, {counts['failed']} failed, {counts['pending']} pending "
+          f"({outcome.computed} computed now in {outcome.wall_time_s:.0f} s)")
+    for name, reason in outcome.failures:
+        print(f"  failed: {name}: {reason}")
+    print(f"table: {out_dir / 'scan_table.csv'}\nreport: {report}")
+    print("Semi-empirical estimates (typical torsion error ~1 kcal/mol): confirm decisions at a higher level.")
+    return PARTIAL_FAILURE if outcome.failures else 0
+
+
+def run_report(args):
+    from .output.report import write_run_report
+
+    report, rows = write_run_report(args.run, rebuild_folders=True)
+    print(f"rebuilt {rows} table rows, compound folders and {report} from {args.run / 'run.sqlite'}")
+    return 0
 
 
 def build_parser():
@@ -167,11 +195,23 @@ def build_parser():
     _add_molecule_options(bonds_parser)
     bonds_parser.set_defaults(handler=run_bonds)
 
-    demo_parser = commands.add_parser("demo", help="scan the demo compound list")
-    demo_parser.add_argument("list", nargs="?", type=Path, default=Path("inputs/demo_dienes.csv"))
+    batch_parser = commands.add_parser("batch", help="scan a compound list (CSV, .smi or SDF) into a run folder")
+    batch_parser.add_argument("list", type=Path, help="compound list: CSV with name,smiles columns, .smi or .sdf")
+    batch_parser.add_argument("--out", type=Path, help="run folder (default results/<list name>); reuse it to resume")
+    _add_batch_options(batch_parser)
+    _add_scan_options(batch_parser)
+    batch_parser.set_defaults(handler=run_batch_command)
+
+    demo_parser = commands.add_parser("demo", help="batch-scan the demo compound list into results/demo")
+    demo_parser.add_argument("list", nargs="?", type=Path, default=DEMO_LIST)
     demo_parser.add_argument("--out", type=Path, default=Path("results/demo"))
+    _add_batch_options(demo_parser)
     _add_scan_options(demo_parser)
-    demo_parser.set_defaults(handler=run_demo)
+    demo_parser.set_defaults(handler=run_batch_command)
+
+    report_parser = commands.add_parser("report", help="rebuild a run folder's table, plots and HTML report from its database")
+    report_parser.add_argument("run", type=Path, help="run folder of a batch")
+    report_parser.set_defaults(handler=run_report)
     return parser
 
 
@@ -182,6 +222,10 @@ def main(argv=None):
                         format="torsionscan: %(levelname)s: %(message)s")
     try:
         return args.handler(args)
+    except KeyboardInterrupt:
+        print("\ntorsionscan: interrupted; finished compounds are stored: rerun the same command to continue",
+              file=sys.stderr)
+        return 130
     except TorsionScanError as error:
         if args.debug:
             raise

@@ -22,10 +22,15 @@ POPULATION_NOTE = (
 )
 
 
+def _round(value, digits):
+    """value rounded to `digits` decimals, with -0.0 written as 0.0."""
+    return round(float(value), digits) + 0.0
+
+
 def _num(value, digits):
     """A JSON-safe rounded number: None for NaN or infinity (JSON has no such values)."""
     value = float(value)
-    return round(value, digits) if math.isfinite(value) else None
+    return _round(value, digits) if math.isfinite(value) else None
 
 
 def _rel(energy_hartree, reference_hartree):
@@ -33,7 +38,7 @@ def _rel(energy_hartree, reference_hartree):
     if not math.isfinite(energy_hartree):
         return None, None
     kcal = (energy_hartree - reference_hartree) * HARTREE_KCAL_MOL
-    return round(kcal, 5), round(kcal * KCAL_KJ, 5)
+    return _round(kcal, 5), _round(kcal * KCAL_KJ, 5)
 
 
 def bond_label(atoms):
@@ -44,7 +49,7 @@ def bond_label(atoms):
 def _stationary_dict(record, reference):
     kcal, kj = _rel(record.energy_hartree, reference)
     return {
-        "angle_deg": round(record.angle_deg, 3), "fit_angle_deg": round(record.fit_angle_deg, 3),
+        "angle_deg": _round(record.angle_deg, 3), "fit_angle_deg": _round(record.fit_angle_deg, 3),
         "energy_rel_kcal_mol": kcal, "energy_rel_kj_mol": kj,
         "refinement": record.refinement, "converged": record.converged,
     }
@@ -61,7 +66,7 @@ def bond_dict(result, bond):
         entry = {
             "angle_deg": p.angle_deg, "measured_angle_deg": _num(p.measured_angle_deg, 5),
             "energy_rel_kcal_mol": kcal, "energy_rel_kj_mol": kj,
-            "fit_kcal_mol": round(float(series.value(p.angle_deg)), 5),
+            "fit_kcal_mol": _round(float(series.value(p.angle_deg)), 5),
             "gradient_evaluations": p.gradient_evaluations, "converged": p.converged, "mirrored": p.mirrored,
         }
         if p.failure:
@@ -79,10 +84,10 @@ def bond_dict(result, bond):
         "fourier": {
             "order": series.order,
             "symmetric": bond.fit.symmetric,
-            "rmse_kcal_mol": round(bond.fit.rmse_kcal_mol, 5),
+            "rmse_kcal_mol": _round(bond.fit.rmse_kcal_mol, 5),
             "target_rmse_kcal_mol": FIT_TARGET_KCAL_MOL,
             "target_met": bond.fit.rmse_kcal_mol <= FIT_TARGET_KCAL_MOL,
-            "max_residual_kcal_mol": round(bond.fit.max_residual_kcal_mol, 5),
+            "max_residual_kcal_mol": _round(bond.fit.max_residual_kcal_mol, 5),
             "series_kcal_mol": {
                 "form": "E = constant + sum_n [cos_n cos(n phi) + sin_n sin(n phi)]",
                 "constant": series.constant, "cos": list(series.cos), "sin": list(series.sin),
@@ -100,9 +105,9 @@ def bond_dict(result, bond):
         "minima": [_stationary_dict(m, ref) for m in bond.minima],
         "maxima": [_stationary_dict(m, ref) for m in bond.maxima],
         "barriers": [
-            {"from_minimum_deg": round(b.from_minimum_deg, 3), "over_maximum_deg": round(b.over_maximum_deg, 3),
-             "to_minimum_deg": round(b.to_minimum_deg, 3), "height_kcal_mol": round(b.height_kcal_mol, 4),
-             "height_kj_mol": round(b.height_kcal_mol * KCAL_KJ, 4), "converged": b.converged}
+            {"from_minimum_deg": _round(b.from_minimum_deg, 3), "over_maximum_deg": _round(b.over_maximum_deg, 3),
+             "to_minimum_deg": _round(b.to_minimum_deg, 3), "height_kcal_mol": _round(b.height_kcal_mol, 4),
+             "height_kj_mol": _round(b.height_kcal_mol * KCAL_KJ, 4), "converged": b.converged}
             for b in bond.barriers
         ],
         "populations": [
@@ -116,13 +121,13 @@ def bond_dict(result, bond):
             "threshold_kcal_mol": result.settings.get("hysteresis_kcal_mol"),
             "flagged": bool(bond.hysteresis),
             "points": [
-                {"angle_deg": h.angle_deg, "energy_difference_kcal_mol": round(h.energy_difference_kcal_mol, 4)}
+                {"angle_deg": h.angle_deg, "energy_difference_kcal_mol": _round(h.energy_difference_kcal_mol, 4)}
                 for h in bond.hysteresis
             ],
         },
         "gradient_evaluations_total": bond.gradient_evaluations_total,
         "gradient_evaluations_per_point_median": statistics.median(p.gradient_evaluations for p in computed),
-        "wall_time_s": round(bond.wall_time_s, 3),
+        "wall_time_s": _round(bond.wall_time_s, 3),
     }
 
 

@@ -1,0 +1,242 @@
+"""Batch runs end to end with real GFN2-xTB scans in real worker processes.
+
+Coarse grids (30 degrees, 2 start structures) keep them fast; the science is checked elsewhere.
+"""
+
+import csv
+import json
+import os
+import signal
+import sqlite3
+import subprocess
+import sys
+import time
+from html.parser import HTMLParser
+
+import pytest
+
+from torsionscan.batch import BatchOptions, run_batch
+from torsionscan.scan import ScanSettings
+from torsionscan.store import DATABASE_NAME, RunStore
+
+FAST = ["--step", "30", "--conformers", "2"]
+FAST_SETTINGS = ScanSettings(step_deg=30.0, conformers=2)
+
+MIXED_LIST = """name,smiles,charge,supplier_code
+# a comment row, skipped
+acrolein,C=CC=O,,S-1
+butadiene,C=CC=C,,S-2
+
+ethylene,C=C,,S-3
+broken,C1=CC,,S-4
+overcharged,C=CC=C,-40,S-5
+slow-terphenyl-diene,C=CC=Cc1ccc(cc1)-c1ccc(cc1)-c1ccccc1,,S-6
+acrolein,C=CC=O,,S-7
+,C=CC(C)=O,,S-8
+"""
+
+
+def _batch(*arguments, timeout=600):
+    return subprocess.run([sys.executable, "-m", "torsionscan.cli", "batch", *map(str, arguments)],
+                          capture_output=True, text=True, timeout=timeout)
+
+
+def _statuses(out):
+    with sqlite3.connect(out / DATABASE_NAME) as db:
+        return {name: (status, reason, session, attempts) for name, status, reason, session, attempts in
+                db.execute("SELECT name, status, reason, session_id, attempts FROM compounds")}
+
+
+@pytest.fixture(scope="module")
+def mixed_run(tmp_path_factory):
+    """A list with good and deliberately bad entries, run by the command with 2 worker processes."""
+    folder = tmp_path_factory.mktemp("mixed")
+    listing = folder / "mixed.csv"
+    listing.write_text(MIXED_LIST)
+    out = folder / "run"
+    completed = _batch(listing, "--out", out, "--workers", 2, "--timeout-per-compound", 4, *FAST)
+    return listing, out, completed
+
+
+def test_each_bad_entry_fails_with_its_reason_and_the_others_finish(mixed_run):
+    _, out, completed = mixed_run
+    assert completed.returncode == 4, completed.stderr  # 4: finished, some compounds failed
+    statuses = _statuses(out)
+    done = {name for name, (status, *_) in statuses.items() if status == "done"}
+    assert done == {"acrolein", "butadiene", "line-11"}  # the nameless row got a name from its line
+    reasons = {name: reason for name, (status, reason, *_) in statuses.items() if status == "failed"}
+    assert "no conjugated single bond" in reasons["ethylene"]
+    assert "could not read 'C1=CC' as SMILES" in reasons["broken"]
+    assert "SCF failed" in reasons["overcharged"]  # a real SCF failure: 62 electrons in butadiene's basis
+    assert reasons["slow-terphenyl-diene"].startswith("timeout: not finished within 4 s")
+    assert "already used on line 3" in reasons["acrolein@line-10"]
+    # the terminal summary lists every failure with its reason
+    for name in reasons:
+        assert f"failed: {name}:" in completed.stdout
+
+
+def test_the_table_has_a_row_per_compound_and_bond_with_extra_columns(mixed_run):
+    _, out, _ = mixed_run
+    with (out / "scan_table.csv").open() as handle:
+        rows = list(csv.DictReader(handle))
+    by_name = {row["name"]: row for row in rows}
+    assert len(rows) == 8  # 3 one-bond compounds done + 5 failed
+    acrolein = by_name["acrolein"]
+    assert acrolein["status"] == "done" and acrolein["bond"] == "2-3" and acrolein["supplier_code"] == "S-1"
+    # s-trans acrolein is the global minimum (experiment and theory agree; common knowledge)
+    assert abs(float(acrolein["global_min_deg"])) > 170
+    assert 0.0 < float(acrolein["s_cis_298.15K"]) < 0.5
+    assert acrolein["hysteresis"] in ("True", "False")
+    assert by_name["broken"]["status"] == "failed" and by_name["broken"]["supplier_code"] == "S-4"
+
+
+class _ReportReader(HTMLParser):
+    def __init__(self):
+        super().__init__()
+        self.sections, self.images, self.cells = {}, [], []
+        self._section = None
+        self._in_cell = False
+
+    def handle_starttag(self, tag, attrs):
+        attrs = dict(attrs)
+        if tag == "section" and attrs.get("id", "").startswith("c-"):
+            self._section = attrs["id"]
+            self.sections[self._section] = []
+        if tag == "img":
+            self.images.append(attrs)
+            if self._section:
+                self.sections[self._section].append(attrs["alt"])
+        if tag == "td":
+            self._in_cell = True
+
+    def handle_endtag(self, tag):
+        if tag == "td":
+            self._in_cell = False
+
+    def handle_data(self, data):
+        if self._in_cell:
+            self.cells.append(data.strip())
+
+
+def test_the_html_report_is_self_contained_and_shows_every_compound(mixed_run):
+    _, out, _ = mixed_run
+    page = (out / "report.html").read_text()
+    reader = _ReportReader()
+    reader.feed(page)
+    for name in ("acrolein", "butadiene", "line-11", "ethylene", "broken", "overcharged"):
+        assert name in reader.cells
+    plotted = [alt for alts in reader.sections.values() for alt in alts]
+    for name in ("acrolein", "butadiene", "line-11"):
+        assert any(name in alt and "2-3" in alt for alt in plotted), name
+    assert all(image["src"].startswith("data:image/png;base64,") for image in reader.images)
+    assert "http://" not in page and "https://" not in page
+    assert "Semi-empirical estimate" in page
+
+
+def test_rerun_resumes_and_changed_settings_are_refused(mixed_run):
+    listing, out, _ = mixed_run
+    before = _statuses(out)
+    again = _batch(listing, "--out", out, "--workers", 2, "--timeout-per-compound", 4, *FAST)
+    assert again.returncode == 4
+    assert "0 compound(s) to compute" in again.stderr
+    assert _statuses(out) == before  # nothing recomputed, nothing lost
+    refused = _batch(listing, "--out", out, "--step", "15", "--conformers", "2")
+    assert refused.returncode == 2
+    assert "other settings (step_deg: 30.0 -> 15.0)" in refused.stderr
+    assert len(refused.stderr.strip().splitlines()) == 1
+
+
+def test_retry_failed_computes_the_failures_again(mixed_run, tmp_path):
+    listing, out, _ = mixed_run
+    retried = _batch(listing, "--out", out, "--workers", 2, "--timeout-per-compound", 4, "--retry-failed", *FAST)
+    assert retried.returncode == 4
+    statuses = _statuses(out)
+    assert statuses["overcharged"][3] == 2 and statuses["acrolein"][3] == 1
+    # entries with a problem in the list itself are not sent to workers again
+    assert statuses["acrolein@line-10"][3] == 0
+
+
+def test_report_rebuilds_everything_from_the_database_alone(mixed_run):
+    _, out, _ = mixed_run
+    folder = out / "compounds" / "acrolein"
+    original = (folder / "summary.json").read_bytes()
+    for path in [out / "report.html", out / "scan_table.csv", *folder.iterdir()]:
+        path.unlink()
+    folder.rmdir()
+    rebuilt = subprocess.run([sys.executable, "-m", "torsionscan.cli", "report", str(out)],
+                             capture_output=True, text=True, timeout=300)
+    assert rebuilt.returncode == 0, rebuilt.stderr
+    assert (folder / "summary.json").read_bytes() == original
+    for name in ("bond_2-3_profile.png", "bond_2-3_scan.xyz", "bond_2-3_minima.sdf", "bond_2-3_profile.csv"):
+        assert (folder / name).stat().st_size > 0
+    assert (out / "report.html").is_file() and (out / "scan_table.csv").is_file()
+
+
+KILL_LIST = "name,smiles\n" + "\n".join(
+    f"{name},{smiles}" for name, smiles in [
+        ("butadiene", "C=CC=C"), ("acrolein", "C=CC=O"), ("isoprene", "C=CC(C)=C"), ("piperylene", "C/C=C/C=C"),
+        ("methacrolein", "C=C(C)C=O"), ("crotonaldehyde", "C/C=C/C=O"), ("styrene", "C=Cc1ccccc1"),
+        ("vinyl-ketone", "C=CC(C)=O"), ("hexatriene", "C=C/C=C/C=C"), ("sorbaldehyde", "C/C=C/C=C/C=O"),
+        ("cinnamaldehyde", "O=C/C=C/c1ccccc1"), ("diene-ester", "C=C/C=C/C(=O)OC"),
+    ]
+) + "\n"
+
+
+def test_kill_9_mid_run_loses_and_recomputes_no_finished_compound(tmp_path):
+    listing = tmp_path / "kill.csv"
+    listing.write_text(KILL_LIST)
+    out = tmp_path / "run"
+    command = [sys.executable, "-m", "torsionscan.cli", "batch", str(listing), "--out", str(out), "--workers", "2",
+               "--step", "15", "--conformers", "2"]
+    process = subprocess.Popen(command, stdout=subprocess.DEVNULL, stderr=subprocess.DEVNULL, start_new_session=True)
+    deadline = time.monotonic() + 300
+    done_at_kill = {}
+    while time.monotonic() < deadline and process.poll() is None:
+        time.sleep(0.05)
+        if (out / DATABASE_NAME).is_file():
+            try:
+                done_at_kill = {k: v for k, v in _statuses(out).items() if v[0] == "done"}
+            except sqlite3.OperationalError:  # the writer is creating the tables
+                continue
+            if len(done_at_kill) >= 3:
+                os.killpg(process.pid, signal.SIGKILL)  # the batch and its workers, no chance to clean up
+                break
+    process.wait(timeout=60)
+    assert process.returncode == -signal.SIGKILL, "the batch ended before it could be killed"
+    with RunStore(out) as store:
+        done_at_kill = {name: store.summary(name) for name in store.names("done")}
+        assert 3 <= len(done_at_kill) < 12
+
+    finished = subprocess.run(command, capture_output=True, text=True, timeout=600)
+    assert finished.returncode == 0, finished.stderr
+    assert f"{12 - len(done_at_kill)} compound(s) to compute" in finished.stderr
+    statuses = _statuses(out)
+    with RunStore(out) as store:
+        assert store.counts() == {"pending": 0, "done": 12, "failed": 0}
+        for name, summary in done_at_kill.items():
+            assert statuses[name][2:] == (1, 1)  # computed once, by the killed session
+            assert store.summary(name) == summary
+    assert {session for _, _, session, _ in statuses.values()} == {1, 2}
+
+
+def _stable(summary):
+    """A summary without the fields that depend on timing."""
+    text = json.dumps(summary)
+    data = json.loads(text)
+    for entry in data["bonds"]:
+        entry.pop("wall_time_s")
+    return data
+
+
+def test_a_dask_local_cluster_gives_exactly_the_local_results(tmp_path):
+    distributed = pytest.importorskip("distributed")
+    listing = tmp_path / "few.csv"
+    listing.write_text("name,smiles\nacrolein,C=CC=O\nbutadiene,C=CC=C\nisoprene,C=CC(C)=C\n")
+    local = run_batch(listing, tmp_path / "local", FAST_SETTINGS, BatchOptions(workers=2))
+    with distributed.LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None) as cluster:
+        remote = run_batch(listing, tmp_path / "dask", FAST_SETTINGS, BatchOptions(cluster=cluster.scheduler_address))
+    assert local.counts == remote.counts == {"pending": 0, "done": 3, "failed": 0}
+    with RunStore(tmp_path / "local") as a, RunStore(tmp_path / "dask") as b:
+        for name in ("acrolein", "butadiene", "isoprene"):
+            assert _stable(a.summary(name)) == _stable(b.summary(name))
+        assert a.settings() == b.settings()

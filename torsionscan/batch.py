@@ -1,0 +1,204 @@
+"""Batch scans of a compound list: parallel, resumable, recorded in the run's SQLite store.
+
+Work is spread over local worker processes (started with "spawn", so no process inherits a
+running calculation library's threads) or over a Dask distributed cluster. Workers only
+compute: each returns a plain-data outcome, and this process alone writes the database and the
+files, committing every compound as soon as its outcome arrives. Rerunning on the same folder
+skips finished compounds; failed ones are retried on request.
+"""
+
+import logging
+import multiprocessing
+import os
+import resource
+import socket
+import time
+from concurrent.futures import ProcessPoolExecutor, as_completed
+from concurrent.futures.process import BrokenProcessPool
+from dataclasses import dataclass
+from pathlib import Path
+
+from .compounds import read_compound_list
+from .errors import CalculationError, InputError, TimeLimitExceeded, TorsionScanError
+from .store import RunStore, compound_folder
+
+log = logging.getLogger(__name__)
+THREAD_VARIABLES = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS")
+
+
+@dataclass(frozen=True)
+class BatchOptions:
+    """How a batch is spread out. Times in seconds."""
+
+    workers: int | None = None  # local worker processes; None = usable cores
+    threads_per_worker: int = 1  # OpenMP/BLAS threads in each worker
+    cluster: str | None = None  # Dask scheduler address; replaces local workers
+    retry_failed: bool = False
+    timeout_per_compound_s: float | None = None
+
+    def check(self):
+        if self.workers is not None and self.workers < 1:
+            raise InputError("--workers must be at least 1")
+        if self.threads_per_worker < 1:
+            raise InputError("--threads-per-worker must be at least 1")
+        if self.timeout_per_compound_s is not None and not self.timeout_per_compound_s > 0:
+            raise InputError("--timeout-per-compound must be a positive number of seconds")
+
+
+@dataclass(frozen=True)
+class BatchSummary:
+    """What a batch invocation did. Counts are over the whole run folder after it."""
+
+    counts: dict
+    computed: int  # compounds computed by this invocation
+    failures: list  # (name, reason) of every failed compound in the run
+    wall_time_s: float
+    out_dir: Path
+
+
+def usable_cores():
+    """CPU cores this process may run on."""
+    try:
+        return len(os.sched_getaffinity(0))
+    except AttributeError:  # not on Linux
+        return os.cpu_count() or 1
+
+
+def scan_compound(job):
+    """Scan one compound (runs in a worker). job: dict from make_job. Returns a plain-data outcome.
+
+    Never raises for a problem with the compound: the outcome's status is then "failed" with the reason.
+    """
+    from rdkit import Chem
+
+    from .output import structure_texts
+    from .output.summary import summary_dict
+    from .scan import scan
+
+    started = time.perf_counter()
+    outcome = {"name": job["name"], "worker": f"{socket.gethostname()}:{os.getpid()}"}
+    given = job["input"]
+    try:
+        source = given["smiles"]
+        if given["molblock"]:
+            source = Chem.MolFromMolBlock(given["molblock"], removeHs=False)
+            if source is None:
+                raise InputError("the structure block could not be read")
+        result = scan(
+            source, bond=given["bond"] or None, name=job["name"], charge=given["charge"],
+            unpaired_electrons=given["unpaired_electrons"], settings=job["settings"], time_limit_s=job["time_limit_s"],
+        )
+        outcome.update(status="done", summary=summary_dict(result), structures=structure_texts(result))
+    except TimeLimitExceeded as error:
+        outcome.update(status="failed", reason=f"timeout: not finished within {job['time_limit_s']:g} s ({error})")
+    except TorsionScanError as error:
+        outcome.update(status="failed", reason=str(error))
+    except Exception as error:  # a library fault in one compound must not stop the batch
+        outcome.update(status="failed", reason=f"internal error: {type(error).__name__}: {error}")
+    outcome["wall_time_s"] = time.perf_counter() - started
+    outcome["peak_memory_mb"] = resource.getrusage(resource.RUSAGE_SELF).ru_maxrss / 1024.0  # Linux: KiB
+    return outcome
+
+
+def make_job(record, settings, time_limit_s):
+    """The picklable work item of one compound (record: RunStore.compound)."""
+    return {"name": record["name"], "input": record["input"], "settings": settings, "time_limit_s": time_limit_s}
+
+
+def _local_outcomes(jobs, workers, threads_per_worker):
+    """Outcomes as they finish, from a pool of spawned local processes."""
+    for variable in THREAD_VARIABLES:  # inherited by the spawned workers
+        os.environ[variable] = str(threads_per_worker)
+    pool = ProcessPoolExecutor(max_workers=workers, mp_context=multiprocessing.get_context("spawn"))
+    try:
+        futures = [pool.submit(scan_compound, job) for job in jobs]
+        for future in as_completed(futures):
+            try:
+                yield future.result()
+            except BrokenProcessPool:
+                raise CalculationError(
+                    "a worker process died (a crash inside a calculation library, or out of memory); "
+                    "finished compounds are stored: rerun the same command to continue"
+                ) from None
+    finally:
+        pool.shutdown(wait=False, cancel_futures=True)
+
+
+def _cluster_outcomes(jobs, address):
+    """Outcomes as they finish, computed on a Dask distributed cluster."""
+    try:
+        from distributed import Client, as_completed as dask_completed
+    except ImportError:
+        raise InputError("--cluster needs Dask distributed: pip install 'torsionscan[cluster]'") from None
+    try:
+        client = Client(address, timeout="30s")
+    except OSError as error:
+        raise InputError(f"cannot reach a Dask scheduler at {address} ({error}); start one or check the address") from None
+    with client:
+        futures = {client.submit(scan_compound, job, pure=False): job["name"] for job in jobs}
+        for future in dask_completed(futures):
+            try:
+                yield future.result()
+            except Exception as error:  # e.g. the worker running it died repeatedly
+                yield {"name": futures[future], "status": "failed",
+                       "reason": f"cluster error: {type(error).__name__}: {error}"}
+
+
+def store_outcome(store, outcome, session_id, out_dir):
+    """Commit one outcome to the store, then write the compound's folder."""
+    from .output import write_compound_folder
+
+    common = dict(session_id=session_id, wall_time_s=outcome.get("wall_time_s"),
+                  peak_memory_mb=outcome.get("peak_memory_mb"), worker=outcome.get("worker"))
+    if outcome["status"] == "done":
+        store.record_done(outcome["name"], outcome["summary"], outcome["structures"], **common)
+        write_compound_folder(outcome["summary"], outcome["structures"], compound_folder(out_dir, outcome["name"]))
+    else:
+        store.record_failed(outcome["name"], outcome["reason"], **common)
+
+
+def run_batch(list_path, out_dir, settings, options=BatchOptions(), progress=None, command="batch"):
+    """Scan every pending compound of a list into out_dir; returns a BatchSummary.
+
+    settings: ScanSettings. progress: optional object with start(to_compute, already_done),
+    update(outcome) after each compound is stored, and close() (see output.progress).
+    Raises InputError for an unreadable list or a run folder made with other settings.
+    """
+    started = time.perf_counter()
+    settings.check()
+    options.check()
+    entries = read_compound_list(list_path)
+    for entry in entries:
+        if entry.note:
+            log.warning("%s (%s): %s", list_path, entry.where, entry.note)
+    out_dir = Path(out_dir)
+    with RunStore(out_dir) as store:
+        store.claim_settings(settings.as_dict(), list_path)
+        store.add_compounds(entries)
+        todo = store.names("pending") + (store.names("failed") if options.retry_failed else [])
+        listed = {entry.name for entry in entries if not entry.problem}
+        jobs = [make_job(store.compound(name), settings, options.timeout_per_compound_s)
+                for name in todo if name in listed]
+        workers = options.workers or usable_cores()
+        session = store.start_session(command, None if options.cluster else workers, options.cluster)
+        if options.cluster:
+            outcomes = _cluster_outcomes(jobs, options.cluster)
+        else:
+            outcomes = _local_outcomes(jobs, min(workers, max(len(jobs), 1)), options.threads_per_worker)
+        computed = 0
+        if progress:
+            progress.start(len(jobs), store.counts()["done"])
+        try:
+            for outcome in outcomes:
+                store_outcome(store, outcome, session, out_dir)
+                computed += 1
+                if progress:
+                    progress.update(outcome)
+        finally:
+            outcomes.close()
+            store.finish_session(session)
+            if progress:
+                progress.close()
+        failures = [(name, store.compound(name)["reason"]) for name in store.names("failed")]
+        counts = store.counts()
+    return BatchSummary(counts, computed, failures, time.perf_counter() - started, out_dir)

@@ -1,0 +1,286 @@
+"""The SQLite database of a batch run: the system of record for its settings and results.
+
+One file per run folder. A single process (the batch driver) writes it; each compound's result
+is committed in one transaction when it arrives, so an interrupted run keeps every finished
+compound. The journal is write-ahead with full syncing: a killed writer loses at most the
+compound it was committing, never an earlier one, and readers (a report) can open it meanwhile.
+
+Tables: run (key/value: settings, their hash, package version), sessions (each invocation),
+compounds (one row each: input, status pending/done/failed, reason, the compound summary
+without its bonds), bonds (one row per scanned dihedral: its summary entry without points,
+plus the relaxed structures as XYZ/SDF text) and points (the profile, one row per angle).
+"""
+
+import hashlib
+import json
+import sqlite3
+from datetime import datetime, timezone
+from pathlib import Path
+
+from . import __version__
+from .errors import InputError
+from .molecule import safe_name
+
+DATABASE_NAME = "run.sqlite"
+COMPOUND_FOLDER = "compounds"  # inside a run folder: one sub-folder of files per compound
+STORE_SCHEMA = 1
+
+_TABLES = """
+CREATE TABLE IF NOT EXISTS run (key TEXT PRIMARY KEY, value TEXT NOT NULL);
+CREATE TABLE IF NOT EXISTS sessions (
+    id INTEGER PRIMARY KEY AUTOINCREMENT, started_utc TEXT NOT NULL, finished_utc TEXT,
+    command TEXT NOT NULL, workers INTEGER, cluster TEXT);
+CREATE TABLE IF NOT EXISTS compounds (
+    name TEXT PRIMARY KEY, position INTEGER NOT NULL, smiles TEXT NOT NULL, input_json TEXT NOT NULL,
+    status TEXT NOT NULL CHECK (status IN ('pending', 'done', 'failed')), reason TEXT NOT NULL DEFAULT '',
+    summary_json TEXT, session_id INTEGER REFERENCES sessions(id), attempts INTEGER NOT NULL DEFAULT 0,
+    wall_time_s REAL, peak_memory_mb REAL, worker TEXT, finished_utc TEXT);
+CREATE TABLE IF NOT EXISTS bonds (
+    compound TEXT NOT NULL REFERENCES compounds(name), bond TEXT NOT NULL, position INTEGER NOT NULL,
+    entry_json TEXT NOT NULL, scan_xyz TEXT NOT NULL, minima_sdf TEXT NOT NULL,
+    PRIMARY KEY (compound, bond));
+CREATE TABLE IF NOT EXISTS points (
+    compound TEXT NOT NULL, bond TEXT NOT NULL, angle_deg REAL NOT NULL, measured_angle_deg REAL,
+    energy_rel_kcal_mol REAL, energy_rel_kj_mol REAL, fit_kcal_mol REAL, converged INTEGER NOT NULL,
+    mirrored INTEGER NOT NULL, gradient_evaluations INTEGER NOT NULL, failure TEXT NOT NULL DEFAULT '',
+    PRIMARY KEY (compound, bond, angle_deg), FOREIGN KEY (compound, bond) REFERENCES bonds(compound, bond));
+"""
+_POINT_COLUMNS = ("angle_deg", "measured_angle_deg", "energy_rel_kcal_mol", "energy_rel_kj_mol", "fit_kcal_mol",
+                  "gradient_evaluations", "converged", "mirrored", "failure")  # summary key order
+_BOOLEAN_POINT_COLUMNS = ("converged", "mirrored")
+
+
+def compound_folder(out_dir, name):
+    """Folder of one compound's files inside a run folder."""
+    return Path(out_dir) / COMPOUND_FOLDER / safe_name(name)
+
+
+def utc_now():
+    """Current UTC time as an ISO 8601 string (seconds)."""
+    return datetime.now(timezone.utc).isoformat(timespec="seconds")
+
+
+def settings_hash(settings):
+    """SHA-256 (hex) of the settings' canonical JSON together with the package version."""
+    text = json.dumps({"settings": settings, "version": __version__}, sort_keys=True)
+    return hashlib.sha256(text.encode()).hexdigest()
+
+
+def _differences(old, new, prefix=""):
+    """'key: old -> new' texts for every differing leaf of two nested dicts."""
+    changes = []
+    for key in sorted(set(old) | set(new)):
+        a, b = old.get(key), new.get(key)
+        if isinstance(a, dict) and isinstance(b, dict):
+            changes += _differences(a, b, f"{prefix}{key}.")
+        elif a != b:
+            changes.append(f"{prefix}{key}: {a} -> {b}")
+    return changes
+
+
+class RunStore:
+    """A run folder's database. Open with RunStore(folder); use as a context manager to close it."""
+
+    def __init__(self, folder, *, create=True):
+        self.path = Path(folder) / DATABASE_NAME
+        if not create and not self.path.is_file():
+            raise InputError(f"{folder} holds no batch run ({DATABASE_NAME} missing); give the --out folder of a batch")
+        self.path.parent.mkdir(parents=True, exist_ok=True)
+        self._db = sqlite3.connect(self.path, timeout=60.0)
+        self._db.row_factory = sqlite3.Row
+        self._db.execute("PRAGMA journal_mode=WAL")
+        self._db.execute("PRAGMA synchronous=FULL")
+        self._db.execute("PRAGMA foreign_keys=ON")
+        with self._db:
+            self._db.executescript(_TABLES)
+
+    def close(self):
+        self._db.close()
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *exc):
+        self.close()
+
+    # -- run settings -------------------------------------------------------------------------
+    def run_info(self):
+        """The run table as a dict (values are strings; 'settings' is JSON text)."""
+        return {row["key"]: row["value"] for row in self._db.execute("SELECT key, value FROM run")}
+
+    def settings(self):
+        """The run's settings dict, or None for a new database."""
+        text = self.run_info().get("settings")
+        return None if text is None else json.loads(text)
+
+    def claim_settings(self, settings, list_file):
+        """Record the settings of a new run, or check that a resumed run uses the same ones.
+
+        Raises InputError naming the differences when they changed or the package version did.
+        """
+        info = self.run_info()
+        if "settings" not in info:
+            with self._db:
+                self._db.executemany("INSERT INTO run (key, value) VALUES (?, ?)", [
+                    ("settings", json.dumps(settings, sort_keys=True)), ("settings_hash", settings_hash(settings)),
+                    ("package_version", __version__), ("store_schema", str(STORE_SCHEMA)),
+                    ("created_utc", utc_now()), ("list_file", str(list_file)),
+                ])
+            return
+        folder = self.path.parent
+        if info.get("package_version") != __version__:
+            raise InputError(
+                f"{folder} was computed by torsionscan {info.get('package_version')}, this is {__version__}; "
+                "results would mix versions: use a new --out folder"
+            )
+        if info["settings_hash"] != settings_hash(settings):
+            changes = "; ".join(_differences(json.loads(info["settings"]), json.loads(json.dumps(settings))))
+            raise InputError(
+                f"{folder} was run with other settings ({changes}); "
+                "repeat the original options to resume, or use a new --out folder"
+            )
+
+    # -- sessions -------------------------------------------------------------------------------
+    def start_session(self, command, workers=None, cluster=None):
+        """Record one invocation; returns its id."""
+        with self._db:
+            cursor = self._db.execute(
+                "INSERT INTO sessions (started_utc, command, workers, cluster) VALUES (?, ?, ?, ?)",
+                (utc_now(), command, workers, cluster),
+            )
+        return cursor.lastrowid
+
+    def finish_session(self, session_id):
+        with self._db:
+            self._db.execute("UPDATE sessions SET finished_utc = ? WHERE id = ?", (utc_now(), session_id))
+
+    # -- compounds ------------------------------------------------------------------------------
+    def add_compounds(self, entries):
+        """Register list entries (compounds.CompoundEntry) as pending; returns the names to keep.
+
+        A known compound keeps its status. Its input may only change while it is not done: a done
+        compound whose SMILES, structure, bond, charge or spin changed raises InputError. Entries
+        with a problem are stored as failed with that problem as the reason.
+        """
+        from .compounds import entry_input
+
+        known = {row["name"]: row for row in self._db.execute("SELECT name, status, input_json FROM compounds")}
+        position = 1 + max((r[0] for r in self._db.execute("SELECT position FROM compounds")), default=0)
+        with self._db:
+            for entry in entries:
+                identity = entry_input(entry)
+                stored = {"input": identity, "where": entry.where, "extra": entry.extra}
+                row = known.get(entry.name)
+                if row is not None:
+                    if json.loads(row["input_json"])["input"] == identity:
+                        continue
+                    if row["status"] == "done":
+                        raise InputError(
+                            f"compound {entry.name!r} ({entry.where}) differs from the one already computed in "
+                            f"{self.path.parent}; rename it or use a new --out folder"
+                        )
+                    self._db.execute("DELETE FROM compounds WHERE name = ?", (entry.name,))
+                status, reason = ("failed", entry.problem) if entry.problem else ("pending", "")
+                self._db.execute(
+                    "INSERT INTO compounds (name, position, smiles, input_json, status, reason) VALUES (?, ?, ?, ?, ?, ?)",
+                    (entry.name, position, entry.smiles, json.dumps(stored), status, reason),
+                )
+                position += 1
+
+    def names(self, status=None):
+        """Compound names in list order, optionally only those with one status."""
+        if status is None:
+            rows = self._db.execute("SELECT name FROM compounds ORDER BY position")
+        else:
+            rows = self._db.execute("SELECT name FROM compounds WHERE status = ? ORDER BY position", (status,))
+        return [row[0] for row in rows]
+
+    def compound(self, name):
+        """One compound's row as a dict (input_json decoded into 'input', 'where', 'extra')."""
+        row = self._db.execute("SELECT * FROM compounds WHERE name = ?", (name,)).fetchone()
+        if row is None:
+            raise KeyError(name)
+        record = dict(row)
+        record.update(json.loads(record.pop("input_json")))
+        return record
+
+    def counts(self):
+        """{'pending': n, 'done': n, 'failed': n}."""
+        counts = {"pending": 0, "done": 0, "failed": 0}
+        for status, count in self._db.execute("SELECT status, COUNT(*) FROM compounds GROUP BY status"):
+            counts[status] = count
+        return counts
+
+    def _clear_bonds(self, name):
+        self._db.execute("DELETE FROM points WHERE compound = ?", (name,))
+        self._db.execute("DELETE FROM bonds WHERE compound = ?", (name,))
+
+    def record_done(self, name, summary, structures, session_id, wall_time_s, peak_memory_mb=None, worker=None):
+        """Store a finished compound in one transaction: its summary, bonds, points and structures."""
+        # lists kept in their own tables leave a null in place, so the rebuilt summary keeps its key order
+        compound_part = {key: (None if key == "bonds" else value) for key, value in summary.items()}
+        with self._db:
+            self._clear_bonds(name)
+            for position, entry in enumerate(summary["bonds"]):
+                texts = structures.get(entry["bond"], {})
+                self._db.execute(
+                    "INSERT INTO bonds (compound, bond, position, entry_json, scan_xyz, minima_sdf) VALUES (?, ?, ?, ?, ?, ?)",
+                    (name, entry["bond"], position,
+                     json.dumps({k: (None if k == "points" else v) for k, v in entry.items()}, allow_nan=False),
+                     texts.get("scan_xyz", ""), texts.get("minima_sdf", "")),
+                )
+                self._db.executemany(
+                    f"INSERT INTO points (compound, bond, {', '.join(_POINT_COLUMNS)}) "
+                    f"VALUES (?, ?, {', '.join('?' * len(_POINT_COLUMNS))})",
+                    [(name, entry["bond"], *(p.get(column, "") for column in _POINT_COLUMNS)) for p in entry["points"]],
+                )
+            self._db.execute(
+                "UPDATE compounds SET status = 'done', reason = '', summary_json = ?, session_id = ?, "
+                "attempts = attempts + 1, wall_time_s = ?, peak_memory_mb = ?, worker = ?, finished_utc = ? "
+                "WHERE name = ?",
+                (json.dumps(compound_part, allow_nan=False), session_id, wall_time_s, peak_memory_mb, worker,
+                 utc_now(), name),
+            )
+
+    def record_failed(self, name, reason, session_id, wall_time_s=None, peak_memory_mb=None, worker=None):
+        """Mark a compound failed with its reason (one transaction)."""
+        with self._db:
+            self._clear_bonds(name)
+            self._db.execute(
+                "UPDATE compounds SET status = 'failed', reason = ?, summary_json = NULL, session_id = ?, "
+                "attempts = attempts + 1, wall_time_s = ?, peak_memory_mb = ?, worker = ?, finished_utc = ? "
+                "WHERE name = ?",
+                (reason, session_id, wall_time_s, peak_memory_mb, worker, utc_now(), name),
+            )
+
+    def summary(self, name):
+        """A done compound's full summary (as output.summary.summary_dict made it)."""
+        row = self._db.execute("SELECT summary_json FROM compounds WHERE name = ?", (name,)).fetchone()
+        if row is None or row[0] is None:
+            raise KeyError(name)
+        summary = json.loads(row[0])
+        summary["bonds"] = []
+        for bond_row in self._db.execute(
+            "SELECT bond, entry_json FROM bonds WHERE compound = ? ORDER BY position", (name,)
+        ):
+            entry = json.loads(bond_row["entry_json"])
+            entry["points"] = []
+            for point in self._db.execute(
+                f"SELECT {', '.join(_POINT_COLUMNS)} FROM points WHERE compound = ? AND bond = ? ORDER BY angle_deg",
+                (name, bond_row["bond"]),
+            ):
+                point = dict(point)
+                for column in _BOOLEAN_POINT_COLUMNS:
+                    point[column] = bool(point[column])
+                if not point["failure"]:
+                    del point["failure"]
+                entry["points"].append(point)
+            summary["bonds"].append(entry)
+        return summary
+
+    def structures(self, name):
+        """{bond label: {"scan_xyz": text, "minima_sdf": text}} of a done compound."""
+        return {
+            row["bond"]: {"scan_xyz": row["scan_xyz"], "minima_sdf": row["minima_sdf"]}
+            for row in self._db.execute("SELECT bond, scan_xyz, minima_sdf FROM bonds WHERE compound = ?", (name,))
+        }
