@@ -1,18 +1,28 @@
-"""Speed of the relaxed scan: gradient evaluations per point, wall time, cost in gradients.
+"""Speed of the relaxed scan and of batch runs.
 
-Run from the repository root:  python benchmarks/scan_benchmark.py [compound-list.csv]
-Prints one row per scanned dihedral and totals. "x gradient" is the whole run (start
+Run from the repository root:
+  python benchmarks/scan_benchmark.py [compound-list.csv]          one molecule at a time
+  python benchmarks/scan_benchmark.py --batch [compound-list.csv]  batch throughput
+
+The first prints one row per scanned dihedral and totals. "x gradient" is the whole run (start
 structures, sweeps, refinement) divided by the time of one GFN2-xTB gradient of that molecule,
 so it measures the optimiser and driver, independent of the machine's speed.
+
+The second runs the list (repeated three times under new names, for a steadier figure) as a
+batch with 1 and 2 local worker processes and on a 2-worker Dask LocalCluster, and prints
+compounds per hour, the speed-up, peak memory per worker and the Dask overhead.
 """
 
 import csv
 import statistics
 import sys
+import tempfile
 import time
 from pathlib import Path
 
 import torsionscan
+from torsionscan.batch import BatchOptions, run_batch
+from torsionscan.store import RunStore
 from torsionscan.engines import make_engine
 from torsionscan.units import ANGSTROM_BOHR
 from torsionscan.molecule import load_molecule, starting_structures
@@ -34,11 +44,51 @@ def time_per_gradient(smiles, repeats=30):
     return statistics.median(times)
 
 
-def main(argv):
-    list_path = Path(argv[1]) if len(argv) > 1 else Path("inputs/demo_dienes.csv")
+def read_list(list_path):
     with list_path.open(newline="") as handle:
-        compounds = [(row["name"], row["smiles"]) for row in csv.DictReader(handle)]
-    compounds = REFERENCE_SET + compounds
+        return [(row["name"], row["smiles"]) for row in csv.DictReader(handle)]
+
+
+def batch_benchmark(list_path, repeats=3):
+    """Batch throughput with 1 and 2 local workers and on a Dask LocalCluster."""
+    from distributed import LocalCluster
+
+    compounds = read_list(list_path)
+    settings = torsionscan.ScanSettings()
+    with tempfile.TemporaryDirectory() as folder:
+        folder = Path(folder)
+        listing = folder / "list.csv"
+        listing.write_text("name,smiles\n" + "".join(
+            f"{name}-{copy},{smiles}\n" for copy in range(repeats) for name, smiles in compounds))
+        count = repeats * len(compounds)
+        walls = {}
+        for label, options in (("1 local worker", BatchOptions(workers=1)), ("2 local workers", BatchOptions(workers=2))):
+            summary = run_batch(listing, folder / label.replace(" ", "_"), settings, options)
+            walls[label] = summary.wall_time_s
+            with RunStore(summary.out_dir) as store:
+                memory = max(store.compound(name)["peak_memory_mb"] for name in store.names("done"))
+                compute = sum(store.compound(name)["wall_time_s"] for name in store.names("done"))
+            print(f"{label:16s}: {count} compounds in {summary.wall_time_s:6.1f} s = "
+                  f"{3600 * count / summary.wall_time_s:6.0f} compounds/hour; "
+                  f"sum of per-compound times {compute:.1f} s; peak memory per worker {memory:.0f} MB")
+        began = time.perf_counter()
+        with LocalCluster(n_workers=2, threads_per_worker=1, processes=True, dashboard_address=None) as cluster:
+            startup = time.perf_counter() - began
+            summary = run_batch(listing, folder / "dask", settings, BatchOptions(cluster=cluster.scheduler_address))
+        walls["dask"] = summary.wall_time_s
+        print(f"{'Dask, 2 workers':16s}: {count} compounds in {summary.wall_time_s:6.1f} s = "
+              f"{3600 * count / summary.wall_time_s:6.0f} compounds/hour (cluster start-up {startup:.1f} s not included)")
+    print(f"speed-up 2 vs 1 local workers: {walls['1 local worker'] / walls['2 local workers']:.2f}x")
+    print(f"Dask overhead vs 2 local workers: {100 * (walls['dask'] / walls['2 local workers'] - 1):+.0f}%")
+
+
+def main(argv):
+    arguments = [a for a in argv[1:] if a != "--batch"]
+    list_path = Path(arguments[0]) if arguments else Path("inputs/demo_compounds.csv")
+    if "--batch" in argv:
+        batch_benchmark(list_path)
+        return
+    compounds = REFERENCE_SET + read_list(list_path)
     header = (f"{'compound':22s} {'bond':>6s} {'atoms':>5s} {'points':>6s} {'med/pt':>6s} {'max/pt':>6s} "
               f"{'total':>6s} {'wall s':>7s} {'ms/grad':>7s} {'x gradient':>10s}")
     print(header)

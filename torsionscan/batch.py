@@ -71,7 +71,7 @@ def scan_compound(job):
     """
     from rdkit import Chem
 
-    from .output import structure_texts
+    from .output import render_figures, structure_texts
     from .output.summary import summary_dict
     from .scan import scan
 
@@ -88,7 +88,10 @@ def scan_compound(job):
             source, bond=given["bond"] or None, name=job["name"], charge=given["charge"],
             unpaired_electrons=given["unpaired_electrons"], settings=job["settings"], time_limit_s=job["time_limit_s"],
         )
-        outcome.update(status="done", summary=summary_dict(result), structures=structure_texts(result))
+        summary = summary_dict(result)
+        # drawing here keeps the single writing process free to take the next outcome
+        outcome.update(status="done", summary=summary, structures=structure_texts(result),
+                       figures=render_figures(summary))
     except TimeLimitExceeded as error:
         outcome.update(status="failed", reason=f"timeout: not finished within {job['time_limit_s']:g} s ({error})")
     except TorsionScanError as error:
@@ -152,7 +155,8 @@ def store_outcome(store, outcome, session_id, out_dir):
                   peak_memory_mb=outcome.get("peak_memory_mb"), worker=outcome.get("worker"))
     if outcome["status"] == "done":
         store.record_done(outcome["name"], outcome["summary"], outcome["structures"], **common)
-        write_compound_folder(outcome["summary"], outcome["structures"], compound_folder(out_dir, outcome["name"]))
+        write_compound_folder(outcome["summary"], outcome["structures"], compound_folder(out_dir, outcome["name"]),
+                              outcome["figures"])
     else:
         store.record_failed(outcome["name"], outcome["reason"], **common)
 

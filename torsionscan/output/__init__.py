@@ -6,6 +6,7 @@ Every file is written to a temporary name in the folder and moved into place, so
 never leaves a half-written file behind.
 """
 
+import io
 import os
 import tempfile
 from pathlib import Path
@@ -45,10 +46,28 @@ def bond_stem(label):
     return f"bond_{label}"
 
 
-def write_compound_folder(summary, structures, out_dir, figure_formats=("png", "svg")):
-    """Write a compound's files from its summary and structure texts into out_dir."""
+def render_figures(summary, formats=("png", "svg")):
+    """{bond label: {format: file bytes}} of every profile figure of a summary."""
+    rendered = {}
+    for entry in summary["bonds"]:
+        figure = profile_figure(summary["name"], entry)
+        rendered[entry["bond"]] = {}
+        for suffix in formats:
+            buffer = io.BytesIO()
+            figure.savefig(buffer, format=suffix)
+            rendered[entry["bond"]][suffix] = buffer.getvalue()
+        plt.close(figure)
+    return rendered
+
+
+def write_compound_folder(summary, structures, out_dir, figures=None):
+    """Write a compound's files from its summary and structure texts into out_dir.
+
+    figures: already rendered figures (render_figures); drawn here when not given.
+    """
     out_dir = Path(out_dir)
     out_dir.mkdir(parents=True, exist_ok=True)
+    figures = render_figures(summary) if figures is None else figures
     for entry in summary["bonds"]:
         stem = bond_stem(entry["bond"])
         texts = structures.get(entry["bond"], {})
@@ -56,10 +75,8 @@ def write_compound_folder(summary, structures, out_dir, figure_formats=("png", "
         for key, suffix in (("scan_xyz", "_scan.xyz"), ("minima_sdf", "_minima.sdf")):
             if key in texts:
                 atomic_write(out_dir / f"{stem}{suffix}", lambda p, t=texts[key]: p.write_text(t))
-        figure = profile_figure(summary["name"], entry)
-        for suffix in figure_formats:
-            atomic_write(out_dir / f"{stem}_profile.{suffix}", lambda p, s=suffix: figure.savefig(p, format=s))
-        plt.close(figure)
+        for suffix, data in figures[entry["bond"]].items():
+            atomic_write(out_dir / f"{stem}_profile.{suffix}", lambda p, d=data: p.write_bytes(d))
     atomic_write(out_dir / "summary.json", lambda p: write_summary(summary, p))
 
 
