@@ -242,3 +242,23 @@ def test_a_dask_local_cluster_gives_exactly_the_local_results(tmp_path):
         for name in ("acrolein", "butadiene", "isoprene"):
             assert _stable(a.summary(name)) == _stable(b.summary(name))
         assert a.settings() == b.settings()
+
+
+def test_an_sdf_list_is_scanned_from_its_own_structures(tmp_path):
+    from rdkit import Chem
+    from rdkit.Chem import AllChem
+
+    listing = tmp_path / "two.sdf"
+    writer = Chem.SDWriter(str(listing))
+    for title, smiles in (("enal-record", "C=CC=O"), ("diene-record", "C=CC=C")):
+        mol = Chem.AddHs(Chem.MolFromSmiles(smiles))
+        AllChem.EmbedMolecule(mol, randomSeed=3)
+        mol.SetProp("_Name", title)
+        mol.SetProp("batch_code", f"B-{title}")
+        writer.write(mol)
+    writer.close()
+    outcome = run_batch(listing, tmp_path / "run", FAST_SETTINGS, BatchOptions(workers=1))
+    assert outcome.counts == {"pending": 0, "done": 2, "failed": 0}
+    with RunStore(tmp_path / "run") as store:
+        assert store.summary("enal-record")["smiles"] == "C=CC=O"
+        assert store.compound("diene-record")["extra"] == {"batch_code": "B-diene-record"}
