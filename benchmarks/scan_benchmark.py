@@ -4,7 +4,8 @@ Run from the repository root:
   python benchmarks/scan_benchmark.py [compound-list.csv]          one molecule at a time
   python benchmarks/scan_benchmark.py --batch [compound-list.csv]  batch throughput
 
-The first prints one row per scanned dihedral and totals. "x gradient" is the whole run (start
+The first prints one row per scanned dihedral and totals, and the time of the MMFF94 residual
+and torsion-term fit relative to the scan. "x gradient" is the whole run (start
 structures, sweeps, refinement) divided by the time of one GFN2-xTB gradient of that molecule,
 so it measures the optimiser and driver, independent of the machine's speed.
 
@@ -14,6 +15,7 @@ compounds per hour, the speed-up, peak memory per worker and the Dask overhead.
 """
 
 import csv
+import math
 import statistics
 import sys
 import tempfile
@@ -22,9 +24,11 @@ from pathlib import Path
 
 import torsionscan
 from torsionscan.batch import BatchOptions, run_batch
+from torsionscan.forcefield import fit_torsion
+from torsionscan.output.summary import summary_dict
 from torsionscan.store import RunStore
 from torsionscan.engines import make_engine
-from torsionscan.units import ANGSTROM_BOHR
+from torsionscan.units import ANGSTROM_BOHR, BOHR_ANGSTROM
 from torsionscan.molecule import load_molecule, starting_structures
 
 REFERENCE_SET = [("butadiene", "C=CC=C"), ("biphenyl", "c1ccccc1-c1ccccc1")]
@@ -42,6 +46,17 @@ def time_per_gradient(smiles, repeats=30):
         engine.energy_and_gradient(coords)
         times.append(time.perf_counter() - began)
     return statistics.median(times)
+
+
+def torsion_fit_seconds(result):
+    """Wall time of the MMFF94 residual and term fit for every bond of a scan result."""
+    began = time.perf_counter()
+    entries = summary_dict(result)["bonds"]
+    for bond, entry in zip(result.bonds, entries):
+        frames = [p.coords_bohr * BOHR_ANGSTROM for p in bond.points
+                  if not p.mirrored and math.isfinite(p.energy_hartree)]
+        fit_torsion(result.mol, entry, frames)
+    return time.perf_counter() - began
 
 
 def read_list(list_path):
@@ -93,7 +108,7 @@ def main(argv):
               f"{'total':>6s} {'wall s':>7s} {'ms/grad':>7s} {'x gradient':>10s}")
     print(header)
     print("-" * len(header))
-    all_medians, run_walls = [], []
+    all_medians, run_walls, fit_ratios = [], [], []
     for name, smiles in compounds:
         gradient_s = time_per_gradient(smiles)
         began = time.perf_counter()
@@ -111,10 +126,16 @@ def main(argv):
         print(f"{'  whole run':22s} {'':>6s} {'':>5s} {'':>6s} {'':>6s} {'':>6s} {total:6d} {wall:7.2f} "
               f"{1000 * gradient_s:7.2f} {wall / gradient_s:10.0f}   (incl. {result.start_gradient_evaluations} "
               f"for start structures)")
+        fit_s = torsion_fit_seconds(result)
+        fit_ratios.append(fit_s / wall)
+        print(f"{'  torsion fit':22s} MMFF94 residual + fit of every bond: {1000 * fit_s:.1f} ms = "
+              f"{100 * fit_s / wall:.2f}% of the scan")
     print("-" * len(header))
     print(f"gradient evaluations per scan point over all compounds: median {statistics.median(all_medians):.1f}, "
           f"max {max(all_medians)}")
     print(f"compounds per hour on one core (this set): {3600 * len(run_walls) / sum(run_walls):.0f}")
+    print(f"torsion-term fit against MMFF94 / scan time: median {100 * statistics.median(fit_ratios):.2f}%, "
+          f"max {100 * max(fit_ratios):.2f}%")
 
 
 if __name__ == "__main__":

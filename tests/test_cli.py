@@ -17,7 +17,7 @@ def acrolein_run(tmp_path_factory):
     out = tmp_path_factory.mktemp("acrolein")
     completed = subprocess.run(
         [sys.executable, "-m", "torsionscan.cli", "scan", "C=CC=O", "--name", "acrolein", "--step", "30",
-         "--temperature", "253", "298.15", "353", "--conformers", "2", "--out", str(out)],
+         "--temperature", "253", "298.15", "353", "--conformers", "2", "--fit-for", "mmff94", "--out", str(out)],
         capture_output=True, text=True, timeout=300,
     )
     assert completed.returncode == 0, completed.stderr
@@ -67,6 +67,15 @@ def test_structures_table_and_plots_are_written(acrolein_run):
     assert len(rows) == 12  # full circle after mirroring
     for suffix in ("png", "svg"):
         assert (out / f"bond_2-3_profile.{suffix}").stat().st_size > 1000
+
+
+def test_fit_for_mmff94_adds_the_torsion_fit_and_its_files(acrolein_run):
+    out, stdout = acrolein_run
+    fit = json.loads((out / "summary.json").read_text())["bonds"][0]["torsion_fit"]
+    assert fit["mm_model"] == "MMFF94 (RDKit)" and len(fit["terms"]) == 4
+    assert "torsion terms vs MMFF94" in stdout and "RMSE vs quantum profile" in stdout
+    for name in ("torsion_fit.json", "torsion_terms.csv", "torsion_openmm.xml", "torsion_fit.png"):
+        assert (out / f"bond_2-3_{name}").stat().st_size > 100
 
 
 def test_bonds_command_lists_one_based_bonds(capsys):

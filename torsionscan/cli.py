@@ -46,6 +46,31 @@ def _add_batch_options(parser):
                         help="give up on a compound after this many seconds (checked between gradients)")
 
 
+def _add_fit_options(parser):
+    parser.add_argument("--periodicities", type=int, default=4, metavar="N",
+                        help="fit terms of periodicity 1..N (default 4, at most 6)")
+    parser.add_argument("--free-phases", action="store_true",
+                        help="fit any phase, not only 0/180 degrees (for molecules with stereocentres)")
+    parser.add_argument("--weight-temperature", type=float, metavar="KELVIN",
+                        help="weight scan points by exp(-E/RT) at this temperature (default: equal weights)")
+
+
+def _fit_options(args):
+    from .forcefield import FitOptions
+
+    return FitOptions(max_periodicity=args.periodicities, free_phases=args.free_phases,
+                      weight_temperature_k=args.weight_temperature)
+
+
+def format_torsion_fit(label, record):
+    """Terminal lines of one bond's torsion-term fit."""
+    terms = ", ".join(f"n={t['periodicity']} {t['phase_deg']:g}° k={t['k_kcal_mol']:.3f}" for t in record["terms"])
+    return (f"bond {label} torsion terms vs {record['mm_model']} (kcal/mol): {terms}\n"
+            f"  RMSE vs quantum profile: {record['rmse_before_kcal_mol']:.3f} before "
+            f"({record['before_model']}), {record['rmse_after_kcal_mol']:.3f} after "
+            f"(max error {record['max_error_after_kcal_mol']:.3f})")
+
+
 def _settings(args):
     from .scan import ScanSettings
 
@@ -105,22 +130,34 @@ def format_summary(summary, out_dir):
     return "\n".join(lines)
 
 
-def _write_and_report(result, out_dir):
-    """Write a result's files, print its report; True if some bond failed."""
-    from .output import write_results
-
-    print(format_summary(write_results(result, out_dir), out_dir))
-    return bool(result.failed_bonds)
-
-
 def run_scan(args):
+    from .output import write_results
+    from .output.forcefield import fit_folder
     from .scan import scan
 
+    options = _fit_options(args)
+    options.check()
     result = scan(
         args.molecule, bond=args.bond, name=args.name, charge=args.charge,
         unpaired_electrons=args.unpaired_electrons, record=args.record, settings=_settings(args),
     )
-    return 3 if _write_and_report(result, args.out or Path("results") / result.name) else 0
+    out_dir = args.out or Path("results") / result.name
+    summary = write_results(result, out_dir)
+    print(format_summary(summary, out_dir))
+    if args.fit_for:
+        for label, record in fit_folder(out_dir, options=options).items():
+            print(format_torsion_fit(label, record))
+    return 3 if result.failed_bonds else 0
+
+
+def run_fit(args):
+    from .output.forcefield import fit_folder
+
+    records = fit_folder(args.folder, args.bond, _fit_options(args), args.mm_energies)
+    for label, record in records.items():
+        print(format_torsion_fit(label, record))
+    print(f"files: {args.folder}/bond_<j-k>_torsion_fit.json, _torsion_terms.csv, _torsion_openmm.xml, _torsion_fit.png")
+    return 0
 
 
 def run_bonds(args):
@@ -189,7 +226,20 @@ def build_parser():
     scan_parser.add_argument("--name", help="name for the molecule and its result folder")
     scan_parser.add_argument("--out", type=Path, help="result folder (default results/<name>)")
     _add_scan_options(scan_parser)
+    scan_parser.add_argument("--fit-for", choices=["mmff94"],
+                             help="also fit dihedral terms that complete this MM model (see 'fit')")
+    _add_fit_options(scan_parser)
     scan_parser.set_defaults(handler=run_scan)
+
+    fit_parser = commands.add_parser(
+        "fit", help="fit dihedral terms for an MM model to a finished scan (MMFF94, or your own MM energies)")
+    fit_parser.add_argument("folder", type=Path, help="result folder of a scan")
+    fit_parser.add_argument("--bond", help="bond j-k of the folder to fit (default: every bond)")
+    fit_parser.add_argument("--mm-energies", type=Path, metavar="CSV",
+                            help="MM energies without this bond's torsion terms, one row per frame of "
+                                 "bond_<j-k>_scan.xyz (column energy_kcal_mol or energy_kj_mol)")
+    _add_fit_options(fit_parser)
+    fit_parser.set_defaults(handler=run_fit)
 
     bonds_parser = commands.add_parser("bonds", help="list the conjugated single bonds a scan would cover")
     _add_molecule_options(bonds_parser)
