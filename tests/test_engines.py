@@ -78,3 +78,56 @@ def test_unknown_method_and_engine_are_refused():
         make_engine([1, 1], method="PM7")
     with pytest.raises(InputError, match="engine"):
         make_engine([1, 1], backend="quantum-magic")
+
+
+@BOTH
+def test_gbsa_water_agrees_between_the_two_libraries(acrolein):
+    molecule, coords = acrolein
+    results = [
+        make_engine(molecule.numbers, backend=name, solvent="water", solvation="gbsa").energy_and_gradient(coords)
+        for name in ("xtb-python", "tblite")
+    ]
+    assert abs(results[0][0] - results[1][0]) <= 1e-6
+    assert np.abs(results[0][1] - results[1][1]).max() <= 1e-6
+
+
+def test_a_solvent_lowers_the_energy_of_a_polar_molecule(acrolein):
+    molecule, coords = acrolein
+    gas, _ = make_engine(molecule.numbers).energy_and_gradient(coords)
+    water, _ = make_engine(molecule.numbers, solvent="water").energy_and_gradient(coords)
+    assert water < gas  # solvation free energy of a polar solute in water is negative (common knowledge)
+
+
+@pytest.mark.parametrize(
+    "options, words",
+    [
+        ({"solvent": "seawater"}, "unknown solvent 'seawater'; choose one of: acetone"),
+        ({"solvent": "octanol", "solvation": "gbsa"}, "GBSA has no parameters for octanol"),
+        ({"solvent": "water", "solvation": "pcm"}, "unknown solvation model"),
+        ({"solvation": "alpb"}, "--solvation-model needs --solvent"),
+    ],
+)
+def test_solvent_choices_that_cannot_work_are_explained(acrolein, options, words):
+    molecule, _ = acrolein
+    with pytest.raises(InputError, match=words):
+        make_engine(molecule.numbers, **options)
+
+
+@pytest.mark.skipif("xtb-python" not in available_backends(), reason="needs xtb-python")
+def test_alpb_is_refused_for_xtb_python(acrolein):
+    molecule, _ = acrolein
+    with pytest.raises(InputError, match="xtb-python offers only GBSA"):
+        make_engine(molecule.numbers, backend="xtb-python", solvent="water")
+
+
+@pytest.mark.parametrize("backend", available_backends())
+def test_conjugation_reuses_the_last_calculation(acrolein, backend):
+    molecule, coords = acrolein
+    engine = make_engine(molecule.numbers, backend=backend)
+    engine.energy_and_gradient(coords)
+    order, gap = engine.conjugation(coords, 1, 2)
+    assert engine.evaluations == 1
+    # a C-C single bond between two pi systems: Wiberg order a little above 1 (common knowledge)
+    assert 1.0 < order < 1.3 and 1.0 < gap < 6.0
+    engine.conjugation(coords + 0.01, 1, 2)
+    assert engine.evaluations == 2

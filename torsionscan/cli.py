@@ -31,7 +31,11 @@ def _add_scan_options(parser):
     parser.add_argument("--seed", type=int, default=61453, help="random seed for embedding")
     parser.add_argument("--method", choices=["GFN2-xTB", "GFN1-xTB"], default="GFN2-xTB")
     parser.add_argument("--engine", choices=["auto", "xtb-python", "tblite"], default="auto",
-                        help="GFN-xTB implementation (default: xtb-python if installed, else tblite)")
+                        help="GFN-xTB implementation (default: xtb-python if installed, else tblite; tblite for ALPB)")
+    parser.add_argument("--solvent", metavar="NAME",
+                        help="implicit solvent, e.g. water, toluene, methanol (default: gas phase)")
+    parser.add_argument("--solvation-model", choices=["alpb", "gbsa"],
+                        help="implicit solvation model (default alpb; xtb-python offers only gbsa)")
 
 
 def _add_batch_options(parser):
@@ -77,12 +81,15 @@ def _settings(args):
     return ScanSettings(
         step_deg=args.step, conformers=args.conformers, seed=args.seed, method=args.method,
         engine=args.engine, temperatures_k=tuple(args.temperature), scis_window_deg=args.scis_window,
+        solvent=args.solvent.lower() if args.solvent else None, solvation_model=args.solvation_model,
     )
 
 
 def format_summary(summary, out_dir):
     """Readable terminal report of a scan summary (output.summary_dict)."""
-    lines = [f"{summary['name']}  {summary['smiles']}  — {summary['method']} via {summary['engine']}, gas phase"]
+    solvent = summary["solvent"]
+    medium = f"in {solvent['name']} ({solvent['model']})" if solvent else "gas phase"
+    lines = [f"{summary['name']}  {summary['smiles']}  — {summary['method']} via {summary['engine']}, {medium}"]
     for entry in summary["bonds"]:
         atoms = "-".join(str(a) for a in entry["dihedral_atoms"])
         kind = "conjugated" if entry["conjugated"] else "chosen"

@@ -27,6 +27,8 @@ class ScanPoint:
     coords_bohr: np.ndarray = field(repr=False)
     mirrored: bool = False  # True: the mirror image of the point at -angle_deg, not computed
     failure: str = ""  # reason when the calculation itself failed (energy is NaN then)
+    central_bond_order: float = float("nan")  # Wiberg bond order of the scanned bond, as the engine reports it
+    homo_lumo_gap_ev: float = float("nan")
 
 
 @dataclass(frozen=True)

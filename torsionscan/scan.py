@@ -18,7 +18,7 @@ from dataclasses import asdict, dataclass, field, replace
 import numpy as np
 
 from . import geometry
-from .engines import make_engine
+from .engines import make_engine, solvation_model
 from .errors import CalculationError, InputError, TimeLimitExceeded
 from .modelhessian import lindh_hessian
 from .molecule import find_conjugated_bonds, load_molecule, select_bond, side_atoms, starting_structures
@@ -42,6 +42,8 @@ class ScanSettings:
     engine: str = "auto"
     temperatures_k: tuple[float, ...] = (298.15,)
     scis_window_deg: float = 30.0
+    solvent: str | None = None  # implicit solvent (engines.SOLVENTS) or None for the gas phase
+    solvation_model: str | None = None  # "alpb" or "gbsa"; None = ALPB when a solvent is given
     hysteresis_kcal_mol: float = 0.3
     point_convergence: Convergence = field(default_factory=Convergence)
     start_convergence: Convergence = field(
@@ -65,6 +67,7 @@ class ScanSettings:
             raise InputError("--temperature values must be finite numbers above 0 K")
         if not 0.0 < self.scis_window_deg <= 90.0:
             raise InputError("--scis-window must be between 0 and 90 degrees")
+        solvation_model(self.solvent, self.solvation_model)
 
     def as_dict(self):
         """Plain-data form for summaries (every field, nested settings included)."""
@@ -225,6 +228,8 @@ class _BondScanner:
             )
             log.warning("dihedral %s: point %.1f deg failed: %s", self.bond.label, angle, error)
             return coords, hessian
+        order, gap = self.relaxer.engine.conjugation(point.coords_bohr, self.atoms[1], self.atoms[2])
+        point = replace(point, central_bond_order=order, homo_lumo_gap_ev=gap)
         self.visits.setdefault(index % self.steps_per_turn, []).append((point, result.hessian))
         return point.coords_bohr, result.hessian
 
@@ -463,7 +468,8 @@ def scan(source, *, bond=None, name=None, charge=None, unpaired_electrons=0, rec
         )
     engine = make_engine(
         molecule.numbers, charge=molecule.charge, unpaired_electrons=molecule.unpaired_electrons,
-        method=settings.method, backend=settings.engine,
+        method=settings.method, backend=settings.engine, solvent=settings.solvent,
+        solvation=settings.solvation_model,
     )
     relaxer = Relaxer(engine, molecule.numbers, deadline)
     coords, energy, hessian, start_evaluations = relax_start(molecule, relaxer, settings)

@@ -23,7 +23,7 @@ from .molecule import safe_name
 
 DATABASE_NAME = "run.sqlite"
 COMPOUND_FOLDER = "compounds"  # inside a run folder: one sub-folder of files per compound
-STORE_SCHEMA = 1
+STORE_SCHEMA = 2
 
 _TABLES = """
 CREATE TABLE IF NOT EXISTS run (key TEXT PRIMARY KEY, value TEXT NOT NULL);
@@ -42,11 +42,13 @@ CREATE TABLE IF NOT EXISTS bonds (
 CREATE TABLE IF NOT EXISTS points (
     compound TEXT NOT NULL, bond TEXT NOT NULL, angle_deg REAL NOT NULL, measured_angle_deg REAL,
     energy_rel_kcal_mol REAL, energy_rel_kj_mol REAL, fit_kcal_mol REAL, converged INTEGER NOT NULL,
-    mirrored INTEGER NOT NULL, gradient_evaluations INTEGER NOT NULL, failure TEXT NOT NULL DEFAULT '',
+    mirrored INTEGER NOT NULL, gradient_evaluations INTEGER NOT NULL, central_bond_order REAL,
+    homo_lumo_gap_ev REAL, failure TEXT NOT NULL DEFAULT '',
     PRIMARY KEY (compound, bond, angle_deg), FOREIGN KEY (compound, bond) REFERENCES bonds(compound, bond));
 """
 _POINT_COLUMNS = ("angle_deg", "measured_angle_deg", "energy_rel_kcal_mol", "energy_rel_kj_mol", "fit_kcal_mol",
-                  "gradient_evaluations", "converged", "mirrored", "failure")  # summary key order
+                  "gradient_evaluations", "converged", "mirrored", "central_bond_order", "homo_lumo_gap_ev",
+                  "failure")  # summary key order
 _BOOLEAN_POINT_COLUMNS = ("converged", "mirrored")
 
 

@@ -10,6 +10,7 @@ import math
 BOHR_ANGSTROM = 0.529177210903  # Angstrom per Bohr
 ANGSTROM_BOHR = 1.0 / BOHR_ANGSTROM
 HARTREE_KCAL_MOL = 627.5094740631  # kcal/mol per Hartree
+HARTREE_EV = 27.211386245988  # eV per Hartree
 KCAL_KJ = 4.184  # kJ per kcal (thermochemical calorie)
 GAS_CONSTANT_KCAL_MOL_K = 8.314462618e-3 / KCAL_KJ  # kcal/(mol K)
 

@@ -15,6 +15,20 @@ from ..errors import InputError
 METHODS = ("GFN2-xTB", "GFN1-xTB")
 BACKENDS = ("xtb-python", "tblite")
 MAX_ATOMIC_NUMBER = 86  # GFN1/GFN2-xTB are parametrised for H-Rn
+SOLVATION_MODELS = ("alpb", "gbsa")
+# One vocabulary of solvent names: name -> (tblite's name, xtb-python's GBSA name or None).
+# ALPB (tblite only) covers all of them; GBSA (both libraries) only those with a second name.
+SOLVENTS = {
+    "acetone": ("acetone", "acetone"), "acetonitrile": ("acetonitrile", "acetonitrile"),
+    "aniline": ("aniline", None), "benzaldehyde": ("benzaldehyde", None), "benzene": ("benzene", "benzene"),
+    "carbon-disulfide": ("cs2", "cs2"), "chloroform": ("chcl3", "chcl3"), "dichloromethane": ("ch2cl2", "ch2cl2"),
+    "diethyl-ether": ("ether", "ether"), "dioxane": ("dioxane", None), "dmf": ("dmf", "dmf"),
+    "dmso": ("dmso", "dmso"), "ethanol": ("ethanol", None), "ethyl-acetate": ("ethylacetate", None),
+    "furan": ("furane", None), "hexadecane": ("hexadecane", None), "hexane": ("hexane", "nhexane"),
+    "methanol": ("methanol", "methanol"), "nitromethane": ("nitromethane", None), "octanol": ("octanol", None),
+    "phenol": ("phenol", None), "thf": ("thf", "thf"), "toluene": ("toluene", "toluene"),
+    "water": ("water", "h2o"), "wet-octanol": ("woctanol", None),
+}
 
 
 class Engine(Protocol):
@@ -60,26 +74,58 @@ def check_electrons(numbers, charge, unpaired_electrons):
         )
 
 
-def make_engine(numbers, *, charge=0, unpaired_electrons=0, method="GFN2-xTB", backend="auto"):
+def solvation_model(solvent, model=None):
+    """The implicit solvation model a run uses: None in the gas phase, else "alpb" unless model says "gbsa".
+
+    Raises InputError for an unknown solvent or model, or a solvent the model has no parameters for.
+    """
+    if solvent is None:
+        if model is not None:
+            raise InputError("--solvation-model needs --solvent")
+        return None
+    if solvent not in SOLVENTS:
+        raise InputError(f"unknown solvent {solvent!r}; choose one of: {', '.join(SOLVENTS)}")
+    model = model or "alpb"
+    if model not in SOLVATION_MODELS:
+        raise InputError(f"unknown solvation model {model!r}; choose alpb or gbsa")
+    if model == "gbsa" and SOLVENTS[solvent][1] is None:
+        offered = ", ".join(name for name, (_, gbsa) in SOLVENTS.items() if gbsa)
+        raise InputError(f"GBSA has no parameters for {solvent}; use ALPB, or a GBSA solvent: {offered}")
+    return model
+
+
+def make_engine(numbers, *, charge=0, unpaired_electrons=0, method="GFN2-xTB", backend="auto", solvent=None,
+                solvation=None):
     """Create an engine for one molecule.
 
-    backend: "auto" (xtb-python if importable, else tblite), "xtb-python" or "tblite".
-    method: "GFN2-xTB" (default) or "GFN1-xTB".
+    backend: "auto" (xtb-python if importable, else tblite; tblite for ALPB), "xtb-python" or "tblite".
+    method: "GFN2-xTB" (default) or "GFN1-xTB". solvent: a name of SOLVENTS or None (gas phase);
+    solvation: "alpb" (default with a solvent; tblite only) or "gbsa".
     """
     if method not in METHODS:
         raise InputError(f"unknown method {method!r}; choose one of {', '.join(METHODS)}")
     check_electrons(numbers, charge, unpaired_electrons)
+    model = solvation_model(solvent, solvation)
     found = available_backends()
     if backend == "auto":
-        if not found:
-            raise InputError("no GFN-xTB backend is installed; pip install tblite (or xtb)")
-        backend = found[0]
+        candidates = ["tblite"] if model == "alpb" else found
+        candidates = [b for b in candidates if b in found]
+        if not candidates:
+            needed = "tblite (for ALPB solvation)" if model == "alpb" else "tblite (or xtb)"
+            raise InputError(f"no suitable GFN-xTB backend is installed; pip install {needed}")
+        backend = candidates[0]
     if backend not in BACKENDS:
         raise InputError(f"unknown engine {backend!r}; choose auto, {' or '.join(BACKENDS)}")
     if backend not in found:
         raise InputError(f"engine {backend} is not installed in this Python; choose another with --engine")
+    if backend == "xtb-python" and model == "alpb":
+        raise InputError("xtb-python offers only GBSA solvation: use --solvation-model gbsa or --engine tblite")
     if backend == "xtb-python":
         from .xtbpython import XtbPythonEngine as engine_class
     else:
         from .tblite import TbliteEngine as engine_class
-    return engine_class(np.asarray(numbers), charge, unpaired_electrons, method)
+    engine_solvent = None
+    if model:
+        tblite_name, xtb_name = SOLVENTS[solvent]
+        engine_solvent = (model, xtb_name if backend == "xtb-python" else tblite_name)
+    return engine_class(np.asarray(numbers), charge, unpaired_electrons, method, engine_solvent)

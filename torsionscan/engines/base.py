@@ -3,13 +3,14 @@
 import numpy as np
 
 from ..errors import CalculationError
+from ..units import HARTREE_EV
 
 
 class WarmStartEngine:
     """Common body of an engine: keeps the calculator and the previous SCF solution.
 
     Subclasses set ``backend`` and ``library_error`` (the library's exception type) and
-    implement ``_new_calculator``, ``_move`` and ``_read``.
+    implement ``_new_calculator``, ``_move``, ``_read`` and ``_electronic_structure``.
     """
 
     backend = ""
@@ -19,14 +20,16 @@ class WarmStartEngine:
     # and match finite differences), which tight refinements need, at no measurable extra cost.
     accuracy = 0.1
 
-    def __init__(self, numbers, charge, unpaired_electrons, method):
+    def __init__(self, numbers, charge, unpaired_electrons, method, solvent=None):
         self.method = method
+        self.solvent = solvent  # (model, engine's solvent name) or None for the gas phase
         self.evaluations = 0
         self.numbers = numbers
         self.charge = charge
         self.unpaired_electrons = unpaired_electrons
         self._calculator = None
         self._previous = None
+        self._previous_coords = None
 
     def _new_calculator(self, coords_bohr):
         raise NotImplementedError
@@ -36,6 +39,10 @@ class WarmStartEngine:
 
     def _read(self, result):
         """(energy_hartree, gradient) from a library result."""
+        raise NotImplementedError
+
+    def _electronic_structure(self, result):
+        """(Wiberg bond-order matrix or None, orbital energies in Hartree, orbital occupations)."""
         raise NotImplementedError
 
     def energy_and_gradient(self, coords_bohr):
@@ -59,5 +66,22 @@ class WarmStartEngine:
                 message = " ".join(str(error).split())
                 raise CalculationError(f"{self.method} SCF failed ({self.backend}): {message}") from None
         self._previous = result
+        self._previous_coords = coords_bohr.copy()
         energy, gradient = self._read(result)
         return float(energy), np.array(gradient, dtype=float)
+
+    def conjugation(self, coords_bohr, j, k):
+        """(Wiberg bond order of atoms j-k or NaN, HOMO-LUMO gap in eV) at coords (N, 3) in Bohr.
+
+        Reuses the last calculation when it was at exactly these coordinates (the end of an
+        optimisation), otherwise runs one.
+        """
+        coords_bohr = np.ascontiguousarray(coords_bohr, dtype=float)
+        if self._previous_coords is None or not np.array_equal(self._previous_coords, coords_bohr):
+            self.energy_and_gradient(coords_bohr)
+        orders, energies, occupations = self._electronic_structure(self._previous)
+        energies, occupations = np.ravel(energies), np.ravel(occupations)
+        occupied = occupations > 0.5
+        gap = (energies[~occupied].min() - energies[occupied].max()) * HARTREE_EV
+        order = float("nan") if orders is None else float(orders[j, k])
+        return order, float(gap)

@@ -19,6 +19,9 @@ class TbliteEngine(WarmStartEngine):
         )
         calculator.set("verbosity", 0)
         calculator.set("accuracy", self.accuracy)
+        if self.solvent:
+            model, name = self.solvent
+            calculator.add(f"{model}-solvation", name)
         return calculator
 
     def _move(self, calculator, coords_bohr):
@@ -26,3 +29,9 @@ class TbliteEngine(WarmStartEngine):
 
     def _read(self, result):
         return result.get("energy"), result.get("gradient")
+
+    def _electronic_structure(self, result):
+        orders = result.get("bond-orders")
+        # spin-resolved for open shells, where the channels are not plain Wiberg orders: not reported
+        orders = orders[..., 0] if orders.shape[-1] == 1 else None
+        return orders, result.get("orbital-energies"), result.get("orbital-occupations")

@@ -2,6 +2,7 @@
 
 from xtb.interface import Calculator, Param, XTBException
 from xtb.libxtb import VERBOSITY_MUTED
+from xtb.utils import Solvent
 
 from .base import WarmStartEngine
 
@@ -21,6 +22,8 @@ class XtbPythonEngine(WarmStartEngine):
         )
         calculator.set_verbosity(VERBOSITY_MUTED)
         calculator.set_accuracy(self.accuracy)
+        if self.solvent:
+            calculator.set_solvent(getattr(Solvent, self.solvent[1]))  # GBSA, the only model offered
         return calculator
 
     def _move(self, calculator, coords_bohr):
@@ -28,3 +31,6 @@ class XtbPythonEngine(WarmStartEngine):
 
     def _read(self, result):
         return result.get_energy(), result.get_gradient()
+
+    def _electronic_structure(self, result):
+        return result.get_bond_orders(), result.get_orbital_eigenvalues(), result.get_orbital_occupations()

@@ -20,7 +20,8 @@ def profile_figure(name, entry, title=None):
     """
     coefficients = entry["fourier"]["series_kcal_mol"]
     series = FourierSeries(coefficients["constant"], coefficients["cos"], coefficients["sin"])
-    fig, ax = plt.subplots(figsize=(8.0, 6.0), dpi=110)
+    fig, (ax, lower) = plt.subplots(2, 1, figsize=(8.0, 7.6), dpi=110, sharex=True,
+                                    gridspec_kw={"height_ratios": [3.0, 1.1]})
     populations = entry["populations"]
     window = populations[0]["scis_window_deg"] if populations else 30.0
     ax.axvspan(-90, 90, color=_SCIS_SHADE, zorder=0, label="s-cis region (|φ| < 90°)")
@@ -64,12 +65,29 @@ def profile_figure(name, entry, title=None):
                                     f"s-trans {100 * p['s_trans']:.1f}%, window {100 * p['scis_window']:.1f}%"))
     ax.set_xlim(-180, 180)
     ax.set_xticks(range(-180, 181, 45))
-    ax.set_xlabel("dihedral φ / degrees   (0 = s-cis, ±180 = s-trans)")
     ax.set_ylabel("relative energy / kcal mol⁻¹")
+    _conjugation_panel(lower, entry["points"])
+    lower.set_xlabel("dihedral φ / degrees   (0 = s-cis, ±180 = s-trans)")
     top = max(series.value(dense).max(), 1.0)
     ax.set_ylim(-0.12 * top - 0.3, 1.25 * top + 0.3)
     label = f"{name}: dihedral {'-'.join(str(a) for a in entry['dihedral_atoms'])}"
     ax.set_title(title or f"{label} — relaxed {entry['method']} scan (semi-empirical estimate)", fontsize=10)
-    ax.legend(fontsize=7, loc="upper center", bbox_to_anchor=(0.5, -0.13), ncol=2, frameon=False)
+    ax.legend(fontsize=7, loc="lower center", bbox_to_anchor=(0.5, 1.06), ncol=2, frameon=False)
     fig.tight_layout()
     return fig
+
+
+def _conjugation_panel(ax, points):
+    """Wiberg bond order of the scanned bond (left axis) and HOMO-LUMO gap (right axis) along the scan."""
+    shown = sorted((p for p in points if p.get("central_bond_order") is not None), key=lambda p: p["angle_deg"])
+    angles = [p["angle_deg"] for p in shown]
+    ax.plot(angles, [p["central_bond_order"] for p in shown], "s-", color="#6a3d9a", ms=3, lw=1.2)
+    ax.set_ylabel("bond order", color="#6a3d9a", fontsize=8)
+    ax.tick_params(axis="y", labelcolor="#6a3d9a", labelsize=8)
+    gaps = [(p["angle_deg"], p["homo_lumo_gap_ev"]) for p in shown if p.get("homo_lumo_gap_ev") is not None]
+    if gaps:
+        right = ax.twinx()
+        right.plot(*zip(*gaps), "d--", color="#b15928", ms=3, lw=1.0)
+        right.set_ylabel("HOMO–LUMO gap / eV", color="#b15928", fontsize=8)
+        right.tick_params(axis="y", labelcolor="#b15928", labelsize=8)
+    ax.set_title("conjugation along the scan: Wiberg bond order of the scanned bond and HOMO–LUMO gap", fontsize=8)

@@ -16,9 +16,10 @@ METHOD_CAUTION = (
     "Confirm decisions with higher-level calculations or experiment; this is not a safety assessment."
 )
 POPULATION_NOTE = (
-    "Classical Boltzmann populations over the 1-D relaxed electronic-energy profile (gas phase): "
+    "Classical Boltzmann populations over the 1-D relaxed energy profile (electronic energy, with implicit "
+    "solvation when a solvent is set): "
     "s_cis is |dihedral| < 90 deg, s_trans is |dihedral| > 90 deg, scis_window is |dihedral| <= the window. "
-    "Zero-point energy, vibrational entropy differences between conformers, quantum effects and solvent are not included."
+    "Zero-point energy, vibrational entropy differences between conformers and quantum effects are not included."
 )
 
 
@@ -55,6 +56,13 @@ def _stationary_dict(record, reference):
     }
 
 
+def solvent_dict(settings):
+    """{"name", "model"} of the implicit solvent of a run's settings, or None in the gas phase."""
+    if not settings.get("solvent"):
+        return None
+    return {"name": settings["solvent"], "model": (settings.get("solvation_model") or "alpb").upper()}
+
+
 def bond_dict(result, bond):
     """The summary entry of one scanned dihedral."""
     ref = bond.reference_energy_hartree
@@ -68,6 +76,7 @@ def bond_dict(result, bond):
             "energy_rel_kcal_mol": kcal, "energy_rel_kj_mol": kj,
             "fit_kcal_mol": _round(float(series.value(p.angle_deg)), 5),
             "gradient_evaluations": p.gradient_evaluations, "converged": p.converged, "mirrored": p.mirrored,
+            "central_bond_order": _num(p.central_bond_order, 5), "homo_lumo_gap_ev": _num(p.homo_lumo_gap_ev, 5),
         }
         if p.failure:
             entry["failure"] = p.failure
@@ -79,6 +88,7 @@ def bond_dict(result, bond):
         "symmetric_profile": bond.symmetric,
         "method": result.method,
         "engine": result.engine,
+        "solvent": solvent_dict(result.settings),
         "reference_energy_hartree": ref,
         "points": points,
         "fourier": {
@@ -142,6 +152,7 @@ def summary_dict(result):
         "unpaired_electrons": result.unpaired_electrons,
         "method": result.method,
         "engine": result.engine,
+        "solvent": solvent_dict(result.settings),
         "caution": METHOD_CAUTION,
         "settings": result.settings,
         "start": {
@@ -161,7 +172,7 @@ def write_summary(summary, path):
 def write_profile_table(bond_entry, path):
     """Write one dihedral's points (from its summary entry) as CSV."""
     columns = ["angle_deg", "measured_angle_deg", "energy_rel_kcal_mol", "energy_rel_kj_mol", "fit_kcal_mol",
-               "converged", "gradient_evaluations", "mirrored", "failure"]
+               "central_bond_order", "homo_lumo_gap_ev", "converged", "gradient_evaluations", "mirrored", "failure"]
     with path.open("w", newline="") as handle:
         writer = csv.DictWriter(handle, fieldnames=columns, extrasaction="ignore")
         writer.writeheader()
