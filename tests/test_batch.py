@@ -227,6 +227,7 @@ def _stable(summary):
     data = json.loads(text)
     for entry in data["bonds"]:
         entry.pop("wall_time_s")
+        entry.pop("frequency_wall_time_s")
     return data
 
 

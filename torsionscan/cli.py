@@ -32,6 +32,10 @@ def _add_scan_options(parser):
     parser.add_argument("--method", choices=["GFN2-xTB", "GFN1-xTB"], default="GFN2-xTB")
     parser.add_argument("--engine", choices=["auto", "xtb-python", "tblite"], default="auto",
                         help="GFN-xTB implementation (default: xtb-python if installed, else tblite; tblite for ALPB)")
+    parser.add_argument("--no-frequencies", action="store_true",
+                        help="skip frequencies and free energies at the stationary points (about 3x faster)")
+    parser.add_argument("--temperature-range", type=float, nargs=2, metavar=("TMIN", "TMAX"), default=[200.0, 450.0],
+                        help="kelvin range of the populations-vs-temperature plot (default 200 450)")
     parser.add_argument("--solvent", metavar="NAME",
                         help="implicit solvent, e.g. water, toluene, methanol (default: gas phase)")
     parser.add_argument("--solvation-model", choices=["alpb", "gbsa"],
@@ -82,6 +86,7 @@ def _settings(args):
         step_deg=args.step, conformers=args.conformers, seed=args.seed, method=args.method,
         engine=args.engine, temperatures_k=tuple(args.temperature), scis_window_deg=args.scis_window,
         solvent=args.solvent.lower() if args.solvent else None, solvation_model=args.solvation_model,
+        frequencies=not args.no_frequencies, temperature_range_k=tuple(args.temperature_range),
     )
 
 
@@ -110,11 +115,16 @@ def format_summary(summary, out_dir):
             )
         for p in entry["populations"]:
             delta_g = p["delta_g_scis_minus_strans_kcal_mol"]
-            lines.append(
+            line = (
                 f"  {p['temperature_k']:g} K: s-cis {100 * p['s_cis']:.1f}%, s-trans {100 * p['s_trans']:.1f}%, "
                 f"|φ| ≤ {p['scis_window_deg']:g}° {100 * p['scis_window']:.2f}%, "
                 f"ΔG(s-cis − s-trans) " + (f"{delta_g:+.2f} kcal/mol" if delta_g is not None else "beyond numerical range")
             )
+            if "s_cis_rrho" in p:
+                line += f"; from free energies of the minima: s-cis {100 * p['s_cis_rrho']:.1f}%"
+                line += "  [the two estimates disagree]" if p["disagree"] else ""
+            lines.append(line)
+        lines += _vibration_lines(entry)
         fourier = entry["fourier"]
         flagged = entry["hysteresis"]["points"]
         hysteresis = ", ".join(f"{h['angle_deg']:g}° ({h['energy_difference_kcal_mol']:.2f})" for h in flagged) or "none"
@@ -123,7 +133,9 @@ def format_summary(summary, out_dir):
         lines.append(
             f"  fit order {fourier['order']}, RMSE {fourier['rmse_kcal_mol']:.3f} kcal/mol; {computed} points"
             f" ({unconverged} not converged), median {entry['gradient_evaluations_per_point_median']:g}"
-            f" gradients/point, {entry['gradient_evaluations_total']} in all; hysteresis: {hysteresis}"
+            f" gradients/point, {entry['gradient_evaluations_total']} in all"
+            + (f" (+{entry['frequency_gradient_evaluations']} for frequencies)" if entry["frequency_gradient_evaluations"]
+               else "") + f"; hysteresis: {hysteresis}"
         )
         if not fourier["target_met"]:
             lines.append(
@@ -135,6 +147,23 @@ def format_summary(summary, out_dir):
     lines.append(f"files: {out_dir}/")
     lines.append("Semi-empirical estimate (typical torsion error ~1 kcal/mol): confirm decisions at a higher level.")
     return "\n".join(lines)
+
+
+def _vibration_lines(entry):
+    """Terminal lines on the nature of the stationary points and the planar s-cis cost of a diene."""
+    lines = []
+    checked = [m for m in entry["minima"] + entry["maxima"] if "imaginary_count" in m]
+    if checked:
+        wrong = [m for m in entry["minima"] if m["imaginary_count"]] + [
+            m for m in entry["maxima"] if m["imaginary_count"] != 1 or not m["imaginary_along_torsion"]]
+        lines.append("  frequencies: " + ("minima have no imaginary mode; each barrier top has one, along the torsion"
+                                          if not wrong else
+                                          "CHECK " + ", ".join(f"{m['angle_deg']:.1f}° ({m['imaginary_count']} imaginary)"
+                                                               for m in wrong)))
+    for r in entry["cycloaddition_readiness"]:
+        lines.append(f"  diene at {r['temperature_k']:g} K: planar s-cis costs ΔG {r['dG_to_planar_scis_kcal_mol']:.2f} "
+                     f"(ΔE {r['dE_to_planar_scis_kcal_mol']:.2f}) kcal/mol, Boltzmann factor {r['boltzmann_factor']:.3g}")
+    return lines
 
 
 def run_scan(args):

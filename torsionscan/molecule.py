@@ -206,6 +206,14 @@ def _is_conjugated_single(bond):
     return bool(_pi_partners(j, k.GetIdx())) and bool(_pi_partners(k, j.GetIdx()))
 
 
+def is_diene_bond(mol, atoms):
+    """True if dihedral i-j-k-l is the central bond of a 1,3-diene: C=C-C=C, not aromatic."""
+    i, j, k, l = atoms
+    double = [mol.GetBondBetweenAtoms(a, b) for a, b in ((i, j), (k, l))]
+    return all(b is not None and b.GetBondType() == Chem.BondType.DOUBLE and not b.GetIsAromatic() for b in double) \
+        and all(mol.GetAtomWithIdx(a).GetAtomicNum() == 6 for a in atoms)
+
+
 def _torsion_bond(mol, j, k):
     i = _outer_atom(mol.GetAtomWithIdx(j), k)
     l = _outer_atom(mol.GetAtomWithIdx(k), j)

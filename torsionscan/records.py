@@ -50,6 +50,10 @@ class StationaryRecord:
     refinement: str  # how the energy was obtained
     converged: bool
     coords_bohr: np.ndarray = field(repr=False)
+    frequencies_cm1: tuple[float, ...] = ()  # harmonic, ascending, imaginary as negative; () if not computed
+    imaginary_count: int | None = None
+    imaginary_along_torsion: bool | None = None  # freezing the dihedral removes an imaginary mode
+    gibbs_corrections_kcal_mol: tuple[float, ...] = ()  # G - E_el per temperature of the settings
 
 
 @dataclass(frozen=True)
@@ -80,6 +84,11 @@ class BondScan:
     hysteresis: tuple[Hysteresis, ...]
     gradient_evaluations_total: int
     wall_time_s: float
+    rrho_populations: tuple = ()  # freeenergy.RrhoPopulations per temperature (with frequencies)
+    planar_scis: StationaryRecord | None = None  # dienes: the planar s-cis structure (with frequencies)
+    readiness: tuple = ()  # freeenergy.Readiness per temperature (dienes, with frequencies)
+    frequency_gradient_evaluations: int = 0  # spent on Hessians and the planar s-cis structure
+    frequency_wall_time_s: float = 0.0
 
 
 @dataclass(frozen=True)

@@ -21,7 +21,10 @@ from . import geometry
 from .engines import make_engine, solvation_model
 from .errors import CalculationError, InputError, TimeLimitExceeded
 from .modelhessian import lindh_hessian
-from .molecule import find_conjugated_bonds, load_molecule, select_bond, side_atoms, starting_structures
+from .freeenergy import add_free_energies
+from .molecule import (
+    find_conjugated_bonds, is_diene_bond, load_molecule, select_bond, side_atoms, starting_structures,
+)
 from .optimize import Convergence, minimize
 from .profile import fit_profile, stationary_points
 from .records import Barrier, BondScan, Hysteresis, ScanPoint, ScanResult, StationaryRecord
@@ -44,6 +47,8 @@ class ScanSettings:
     scis_window_deg: float = 30.0
     solvent: str | None = None  # implicit solvent (engines.SOLVENTS) or None for the gas phase
     solvation_model: str | None = None  # "alpb" or "gbsa"; None = ALPB when a solvent is given
+    frequencies: bool = True  # harmonic frequencies and free energies at the stationary points
+    temperature_range_k: tuple[float, float] = (200.0, 450.0)  # of the populations-vs-temperature plot
     hysteresis_kcal_mol: float = 0.3
     point_convergence: Convergence = field(default_factory=Convergence)
     start_convergence: Convergence = field(
@@ -65,6 +70,9 @@ class ScanSettings:
             raise InputError("--conformers must be at least 1")
         if not self.temperatures_k or not all(math.isfinite(t) and t > 0 for t in self.temperatures_k):
             raise InputError("--temperature values must be finite numbers above 0 K")
+        low, high = self.temperature_range_k
+        if not 0.0 < low < high:
+            raise InputError("--temperature-range needs 0 < TMIN < TMAX (kelvin)")
         if not 0.0 < self.scis_window_deg <= 90.0:
             raise InputError("--scis-window must be between 0 and 90 degrees")
         solvation_model(self.solvent, self.solvation_model)
@@ -438,7 +446,7 @@ def scan_bond(molecule, bond, relaxer, start, settings):
         region_populations(fit.series.value, t, settings.scis_window_deg) for t in settings.temperatures_k
     )
     points = tuple(replace(p, angle_deg=_display_angle(p.angle_deg)) for p, _ in circle)
-    return BondScan(
+    bond_scan = BondScan(
         dihedral_atoms=bond.atoms, conjugated=bond.conjugated, symmetric=scanner.symmetric,
         points=tuple(sorted(points, key=lambda p: p.angle_deg)), reference_energy_hartree=reference,
         fit=fit, minima=tuple(minima), maxima=tuple(maxima),
@@ -447,6 +455,20 @@ def scan_bond(molecule, bond, relaxer, start, settings):
         gradient_evaluations_total=relaxer.engine.evaluations - evaluations_before,
         wall_time_s=time.perf_counter() - began,
     )
+    if settings.frequencies:
+        masses = [atom.GetMass() for atom in molecule.mol.GetAtoms()]
+        planar_start = None
+        if is_diene_bond(molecule.mol, bond.atoms):
+            point, hessian = scanner.nearest(circle, 0.0)
+            planar_start = (point.coords_bohr, hessian)
+        scanned, started = relaxer.engine.evaluations, time.perf_counter()
+        try:
+            bond_scan = add_free_energies(bond_scan, relaxer, masses, settings, planar_start)
+        except CalculationError as error:
+            log.warning("dihedral %s: frequencies failed (%s); free energies left out", bond.label, error)
+        bond_scan = replace(bond_scan, frequency_gradient_evaluations=relaxer.engine.evaluations - scanned,
+                            frequency_wall_time_s=time.perf_counter() - started)
+    return bond_scan
 
 
 def scan(source, *, bond=None, name=None, charge=None, unpaired_electrons=0, record=1, settings=None,

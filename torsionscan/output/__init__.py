@@ -13,7 +13,7 @@ from pathlib import Path
 
 import matplotlib.pyplot as plt
 
-from .plot import profile_figure
+from .plot import populations_figure, profile_figure
 from .structures import minima_sdf_text, scan_xyz_text
 from .summary import bond_label, summary_dict, write_profile_table, write_summary
 
@@ -46,17 +46,26 @@ def bond_stem(label):
     return f"bond_{label}"
 
 
-def render_figures(summary, formats=("png", "svg")):
-    """{bond label: {format: file bytes}} of every profile figure of a summary."""
+def _figure_bytes(figure, suffix):
+    buffer = io.BytesIO()
+    figure.savefig(buffer, format=suffix)
+    return buffer.getvalue()
+
+
+def render_figures(summary):
+    """{bond label: {file name ending: bytes}} of every figure of a summary: the profile as
+    "profile.png" and "profile.svg", populations against temperature as "populations.png"."""
+    temperature_range = summary["settings"].get("temperature_range_k") or (200.0, 450.0)
     rendered = {}
     for entry in summary["bonds"]:
-        figure = profile_figure(summary["name"], entry)
-        rendered[entry["bond"]] = {}
-        for suffix in formats:
-            buffer = io.BytesIO()
-            figure.savefig(buffer, format=suffix)
-            rendered[entry["bond"]][suffix] = buffer.getvalue()
-        plt.close(figure)
+        profile = profile_figure(summary["name"], entry)
+        populations = populations_figure(summary["name"], entry, temperature_range)
+        rendered[entry["bond"]] = {
+            "profile.png": _figure_bytes(profile, "png"), "profile.svg": _figure_bytes(profile, "svg"),
+            "populations.png": _figure_bytes(populations, "png"),
+        }
+        plt.close(profile)
+        plt.close(populations)
     return rendered
 
 
@@ -75,8 +84,8 @@ def write_compound_folder(summary, structures, out_dir, figures=None):
         for key, suffix in (("scan_xyz", "_scan.xyz"), ("minima_sdf", "_minima.sdf")):
             if key in texts:
                 atomic_write(out_dir / f"{stem}{suffix}", lambda p, t=texts[key]: p.write_text(t))
-        for suffix, data in figures[entry["bond"]].items():
-            atomic_write(out_dir / f"{stem}_profile.{suffix}", lambda p, d=data: p.write_bytes(d))
+        for ending, data in figures[entry["bond"]].items():
+            atomic_write(out_dir / f"{stem}_{ending}", lambda p, d=data: p.write_bytes(d))
     atomic_write(out_dir / "summary.json", lambda p: write_summary(summary, p))
 
 

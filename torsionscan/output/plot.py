@@ -91,3 +91,32 @@ def _conjugation_panel(ax, points):
         right.set_ylabel("HOMO–LUMO gap / eV", color="#b15928", fontsize=8)
         right.tick_params(axis="y", labelcolor="#b15928", labelsize=8)
     ax.set_title("conjugation along the scan: Wiberg bond order of the scanned bond and HOMO–LUMO gap", fontsize=8)
+
+
+def populations_figure(name, entry, temperature_range_k):
+    """s-cis and near-planar s-cis window populations against temperature (integrated over the fit),
+    with the free-energy (RRHO) s-cis populations at the run's temperatures where computed."""
+    from ..thermo import region_populations
+
+    coefficients = entry["fourier"]["series_kcal_mol"]
+    series = FourierSeries(coefficients["constant"], coefficients["cos"], coefficients["sin"])
+    window = entry["populations"][0]["scis_window_deg"] if entry["populations"] else 30.0
+    temperatures = np.linspace(*temperature_range_k, 41)
+    integrated = [region_populations(series.value, t, window) for t in temperatures]
+    fig, ax = plt.subplots(figsize=(7.0, 4.5), dpi=110)
+    ax.plot(temperatures, [100 * p.s_cis for p in integrated], "-", color="#1f5fa8", lw=1.8,
+            label="s-cis (|φ| < 90°), integrated over the profile")
+    ax.plot(temperatures, [100 * p.scis_window for p in integrated], "--", color="#1f5fa8", lw=1.2,
+            label=f"near-planar s-cis window (|φ| ≤ {window:g}°)")
+    rrho = [(p["temperature_k"], 100 * p["s_cis_rrho"]) for p in entry["populations"] if "s_cis_rrho" in p]
+    if rrho:
+        ax.plot(*zip(*rrho), "D", color="#b15928", ms=6, label="s-cis from free energies of the minima (RRHO)")
+    ax.set_xlim(*temperature_range_k)
+    ax.set_ylim(0, None)
+    ax.set_xlabel("temperature / K")
+    ax.set_ylabel("population / %")
+    ax.set_title(f"{name}: dihedral {'-'.join(str(a) for a in entry['dihedral_atoms'])} — populations vs temperature "
+                 "(semi-empirical estimate)", fontsize=9)
+    ax.legend(fontsize=8, frameon=False)
+    fig.tight_layout()
+    return fig

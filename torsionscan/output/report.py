@@ -29,7 +29,8 @@ def table_columns(temperatures_k, extra_columns):
                "barrier_to_other_region_kcal_mol", "rotation_max_kcal_mol"]
     for t in temperatures_k:
         key = _temperature_key(t)
-        columns += [f"s_cis_{key}", f"scis_window_{key}", f"dG_scis_minus_strans_{key}_kcal_mol"]
+        columns += [f"s_cis_{key}", f"scis_window_{key}", f"dG_scis_minus_strans_{key}_kcal_mol",
+                    f"s_cis_rrho_{key}", f"dG_to_planar_scis_{key}_kcal_mol"]
     columns += ["fit_rmse_kcal_mol", "fit_target_met", "hysteresis", "compound_wall_time_s"]
     return columns + [c for c in extra_columns if c not in columns]
 
@@ -73,6 +74,9 @@ def bond_row(entry):
         row[f"s_cis_{key}"] = p["s_cis"]
         row[f"scis_window_{key}"] = p["scis_window"]
         row[f"dG_scis_minus_strans_{key}_kcal_mol"] = p["delta_g_scis_minus_strans_kcal_mol"]
+        row[f"s_cis_rrho_{key}"] = p.get("s_cis_rrho")
+    for r in entry.get("cycloaddition_readiness", []):
+        row[f"dG_to_planar_scis_{_temperature_key(r['temperature_k'])}_kcal_mol"] = r["dG_to_planar_scis_kcal_mol"]
     return row
 
 

@@ -23,6 +23,20 @@ POPULATION_NOTE = (
 )
 
 
+RRHO_NOTE = (
+    " s_cis_rrho/s_trans_rrho: Boltzmann populations of the located minima from free energies "
+    "G = E + (G - E)_RRHO (harmonic frequencies, quasi-RRHO entropy below 100 cm-1, Grimme 2012); "
+    "'disagree' marks a difference of more than 0.1 in s-cis fraction between the two estimates "
+    "(the integrated one counts the whole width of each well, the RRHO one its vibrations)."
+)
+POPULATION_DISAGREEMENT = 0.1  # s-cis fraction difference reported as disagreement
+READINESS_NOTE = (
+    "Dienes: cost of reaching the planar s-cis geometry (dihedral held at 0 deg, its torsion frozen in the "
+    "frequencies) from the most stable conformer; add dG_to_planar_scis to a cycloaddition barrier computed from "
+    "the planar s-cis diene. boltzmann_factor = exp(-dG/RT); scis_window is the integrated |phi| <= window fraction."
+)
+
+
 def _round(value, digits):
     """value rounded to `digits` decimals, with -0.0 written as 0.0."""
     return round(float(value), digits) + 0.0
@@ -49,11 +63,48 @@ def bond_label(atoms):
 
 def _stationary_dict(record, reference):
     kcal, kj = _rel(record.energy_hartree, reference)
-    return {
+    entry = {
         "angle_deg": _round(record.angle_deg, 3), "fit_angle_deg": _round(record.fit_angle_deg, 3),
         "energy_rel_kcal_mol": kcal, "energy_rel_kj_mol": kj,
         "refinement": record.refinement, "converged": record.converged,
     }
+    if record.frequencies_cm1:
+        entry.update(
+            frequencies_cm1=[_round(f, 1) for f in record.frequencies_cm1],
+            imaginary_count=record.imaginary_count,
+            gibbs_correction_kcal_mol=[_round(g, 4) for g in record.gibbs_corrections_kcal_mol],
+        )
+        if record.kind == "maximum":
+            entry["imaginary_along_torsion"] = record.imaginary_along_torsion
+    return entry
+
+
+def _populations(bond):
+    """Integrated populations per temperature, with the free-energy (RRHO) ones beside them when computed."""
+    entries = []
+    for n, p in enumerate(bond.populations):
+        entry = {"temperature_k": p.temperature_k, "s_cis": p.s_cis, "s_trans": p.s_trans,
+                 "scis_window": p.scis_window, "scis_window_deg": p.scis_window_deg,
+                 "delta_g_scis_minus_strans_kcal_mol": _num(p.delta_g_kcal_mol, 4)}
+        if bond.rrho_populations:
+            rrho = bond.rrho_populations[n]
+            entry.update(
+                s_cis_rrho=rrho.s_cis, s_trans_rrho=rrho.s_trans,
+                delta_g_rrho_scis_minus_strans_kcal_mol=_num(rrho.delta_g_kcal_mol, 4),
+                disagree=abs(rrho.s_cis - p.s_cis) > POPULATION_DISAGREEMENT,
+            )
+        entries.append(entry)
+    return entries
+
+
+def _readiness(bond):
+    """The cycloaddition_readiness list of a diene bond (empty otherwise)."""
+    return [
+        {"temperature_k": r.temperature_k, "dG_to_planar_scis_kcal_mol": _num(r.delta_g_kcal_mol, 4),
+         "dE_to_planar_scis_kcal_mol": _num(r.delta_e_kcal_mol, 4), "boltzmann_factor": _num(r.boltzmann_factor, 8),
+         "scis_window": p.scis_window, "scis_window_deg": p.scis_window_deg}
+        for r, p in zip(bond.readiness, bond.populations)
+    ]
 
 
 def solvent_dict(settings):
@@ -120,13 +171,11 @@ def bond_dict(result, bond):
              "height_kj_mol": _round(b.height_kcal_mol * KCAL_KJ, 4), "converged": b.converged}
             for b in bond.barriers
         ],
-        "populations": [
-            {"temperature_k": p.temperature_k, "s_cis": p.s_cis, "s_trans": p.s_trans,
-             "scis_window": p.scis_window, "scis_window_deg": p.scis_window_deg,
-             "delta_g_scis_minus_strans_kcal_mol": _num(p.delta_g_kcal_mol, 4)}
-            for p in bond.populations
-        ],
-        "populations_note": POPULATION_NOTE,
+        "populations": _populations(bond),
+        "populations_note": POPULATION_NOTE + (RRHO_NOTE if bond.rrho_populations else ""),
+        "planar_scis": _stationary_dict(bond.planar_scis, ref) if bond.planar_scis else None,
+        "cycloaddition_readiness": _readiness(bond),
+        "cycloaddition_readiness_note": READINESS_NOTE if bond.readiness else None,
         "hysteresis": {
             "threshold_kcal_mol": result.settings.get("hysteresis_kcal_mol"),
             "flagged": bool(bond.hysteresis),
@@ -138,6 +187,8 @@ def bond_dict(result, bond):
         "gradient_evaluations_total": bond.gradient_evaluations_total,
         "gradient_evaluations_per_point_median": statistics.median(p.gradient_evaluations for p in computed),
         "wall_time_s": _round(bond.wall_time_s, 3),
+        "frequency_gradient_evaluations": bond.frequency_gradient_evaluations,
+        "frequency_wall_time_s": _round(bond.frequency_wall_time_s, 3),
     }
 
 

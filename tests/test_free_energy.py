@@ -1,0 +1,96 @@
+"""Frequencies, free energies and cycloaddition readiness on real GFN2-xTB calculations."""
+
+import math
+
+import numpy as np
+import pytest
+
+import torsionscan
+from torsionscan.engines import make_engine
+from torsionscan.freeenergy import finite_difference_hessian
+from torsionscan.molecule import load_molecule, starting_structures
+from torsionscan.optimize import Convergence
+from torsionscan.output.summary import summary_dict
+from torsionscan.rrho import harmonic_frequencies
+from torsionscan.scan import Relaxer, ScanSettings
+from torsionscan.units import ANGSTROM_BOHR, HARTREE_KCAL_MOL, rt_kcal_mol
+
+TIGHT = Convergence(max_gradient=2e-6, rms_gradient=1e-6, max_evaluations=300)
+
+
+def _minimum(smiles):
+    molecule = load_molecule(smiles)
+    engine = make_engine(molecule.numbers)
+    result = Relaxer(engine, molecule.numbers).relax(starting_structures(molecule, 1)[0] * ANGSTROM_BOHR, TIGHT)
+    assert result.converged
+    masses = [atom.GetMass() for atom in molecule.mol.GetAtoms()]
+    return engine, masses, result.x.reshape(-1, 3)
+
+
+def test_hessian_is_symmetric_and_consistent_with_gradient_differences():
+    engine, _, coords = _minimum("C=CC=O")
+    gradient = lambda c: engine.energy_and_gradient(c)[1].ravel()  # noqa: E731
+    raw = finite_difference_hessian(gradient, coords, symmetrise=False)
+    assert np.abs(raw - raw.T).max() < 1e-4 * np.abs(raw).max()
+    hessian = finite_difference_hessian(gradient, coords)
+    direction = np.random.default_rng(7).normal(size=coords.size)
+    direction /= np.linalg.norm(direction)
+    step = 0.002  # a different step from the Hessian's own 0.005 Bohr
+    change = (gradient(coords.ravel() + step * direction) - gradient(coords.ravel() - step * direction)) / (2 * step)
+    assert np.abs(hessian @ direction - change).max() < 2e-3 * np.abs(change).max()
+
+
+def test_formaldehyde_frequencies_match_the_experimental_table():
+    # Experimental fundamentals of H2CO, cm-1: T. Shimanouchi, Tables of Molecular Vibrational
+    # Frequencies, Consolidated Volume I, NSRDS-NBS 39 (1972) (values from memory):
+    # nu4 1167, nu6 1249, nu3 1500, nu2 1746, nu1 2782, nu5 2843. GFN2-xTB harmonic frequencies
+    # are typically within a few percent of experiment (from memory), so each mode within 8%
+    # and the mean absolute deviation below 60 cm-1.
+    experiment = np.array([1167.0, 1249.0, 1500.0, 1746.0, 2782.0, 2843.0])
+    engine, masses, coords = _minimum("C=O")
+    hessian = finite_difference_hessian(lambda c: engine.energy_and_gradient(c)[1], coords)
+    frequencies, _ = harmonic_frequencies(hessian, masses, coords)
+    assert len(frequencies) == 6 and frequencies.min() > 0
+    assert np.all(np.abs(frequencies - experiment) <= 0.08 * experiment)
+    assert np.mean(np.abs(frequencies - experiment)) < 60.0
+
+
+def test_butadiene_stationary_points_have_the_right_nature(butadiene_scan):
+    bond = butadiene_scan.bonds[0]
+    assert all(m.imaginary_count == 0 for m in bond.minima)
+    assert all(m.imaginary_count == 1 and m.imaginary_along_torsion for m in bond.maxima)
+    s_trans = next(m for m in bond.minima if abs(m.angle_deg) > 170)
+    # s-trans-1,3-butadiene torsional fundamental nu13 = 163 cm-1 (gas-phase infrared; from memory);
+    # 30 cm-1 allows GFN2-xTB's ~1 kcal/mol torsion error on this shallow mode
+    assert s_trans.frequencies_cm1[0] == pytest.approx(163.0, abs=30.0)
+
+
+def test_free_energy_populations_and_readiness_of_butadiene(butadiene_scan):
+    bond = butadiene_scan.bonds[0]
+    entry = summary_dict(butadiene_scan)["bonds"][0]
+    for p in entry["populations"]:
+        assert p["s_cis_rrho"] + p["s_trans_rrho"] == pytest.approx(1.0)
+        assert 0.0 < p["s_cis_rrho"] < 0.3  # s-trans dominates (common knowledge)
+    assert entry["minima"][0]["frequencies_cm1"] and "gibbs_correction_kcal_mol" in entry["minima"][0]
+    readiness = entry["cycloaddition_readiness"]
+    assert [r["temperature_k"] for r in readiness] == [p["temperature_k"] for p in entry["populations"]]
+    at_zero = next(m for m in bond.maxima if abs(m.angle_deg) < 1)
+    # the planar s-cis structure is the barrier top at 0 deg: the same electronic energy
+    assert readiness[0]["dE_to_planar_scis_kcal_mol"] == pytest.approx(
+        (at_zero.energy_hartree - bond.reference_energy_hartree) * HARTREE_KCAL_MOL, abs=0.01)
+    for r in readiness:
+        rt = rt_kcal_mol(r["temperature_k"])
+        assert r["boltzmann_factor"] == pytest.approx(math.exp(-r["dG_to_planar_scis_kcal_mol"] / rt), rel=1e-4)
+    assert bond.planar_scis.imaginary_count == 0  # the torsion is frozen there
+    assert len(bond.planar_scis.frequencies_cm1) == 3 * 10 - 7
+
+
+def test_an_enone_gets_no_diene_readiness_and_frequencies_can_be_skipped():
+    settings = ScanSettings(step_deg=30.0, conformers=2)
+    enone = summary_dict(torsionscan.scan("C=CC=O", settings=settings))["bonds"][0]
+    assert enone["cycloaddition_readiness"] == [] and enone["planar_scis"] is None
+    assert "s_cis_rrho" in enone["populations"][0]
+    quick = summary_dict(torsionscan.scan("C=CC=O", settings=ScanSettings(step_deg=30.0, conformers=2,
+                                                                          frequencies=False)))["bonds"][0]
+    assert "frequencies_cm1" not in quick["minima"][0] and "s_cis_rrho" not in quick["populations"][0]
+    assert quick["frequency_gradient_evaluations"] == 0

@@ -1,0 +1,158 @@
+"""Free energies of a scanned bond's conformers: harmonic frequencies at the refined stationary
+points, RRHO/quasi-RRHO thermochemistry, conformer populations from free energies, and for
+dienes the free-energy cost of holding the bond planar s-cis.
+
+Hessians are central finite differences of the engine's analytic gradients (6N gradients,
+step 0.005 Bohr). Thermochemistry follows the ideal-gas rigid-rotor/harmonic-oscillator model
+with Grimme's quasi-RRHO entropy for modes below 100 cm^-1 (S. Grimme, Chem. Eur. J. 2012, 18,
+9955), rotational symmetry number 1 for every conformer (mirror-image conformers are listed
+separately instead), 1 atm. Energies in Hartree inside, kcal/mol in the records.
+"""
+
+import math
+from dataclasses import dataclass, replace
+
+import numpy as np
+
+from . import geometry
+from .errors import CalculationError
+from .rrho import conformer_populations, harmonic_frequencies, rrho_thermo
+from .units import HARTREE_KCAL_MOL, rt_kcal_mol
+
+FD_STEP_BOHR = 0.005
+QUASI_HARMONIC_CUTOFF_CM1 = 100.0
+
+
+@dataclass(frozen=True)
+class Vibrations:
+    """Harmonic analysis of one structure."""
+
+    frequencies_cm1: tuple[float, ...]  # ascending; imaginary ones negative
+    imaginary_count: int
+    imaginary_along_torsion: bool | None  # freezing the dihedral removes an imaginary mode; None if none
+    gibbs_corrections_kcal_mol: tuple[float, ...]  # G - E_el per temperature (quasi-RRHO)
+
+
+@dataclass(frozen=True)
+class RrhoPopulations:
+    """Conformer populations from free energies of the located minima at one temperature."""
+
+    temperature_k: float
+    s_cis: float
+    s_trans: float
+    delta_g_kcal_mol: float  # -RT ln(s_cis / s_trans)
+
+
+@dataclass(frozen=True)
+class Readiness:
+    """Cost of reaching the planar s-cis geometry of a diene from its most stable conformer."""
+
+    temperature_k: float
+    delta_g_kcal_mol: float  # G(planar s-cis, torsion frozen) - G(most stable minimum)
+    delta_e_kcal_mol: float  # same with electronic energies (lowest-energy minimum)
+    boltzmann_factor: float  # exp(-delta_g / RT)
+
+
+def finite_difference_hessian(gradient_of, coords_bohr, step_bohr=FD_STEP_BOHR, symmetrise=True):
+    """(3N, 3N) Hessian in Hartree/Bohr^2 from central differences of gradient_of(coords), symmetrised
+    (H + H^T)/2 unless symmetrise is False."""
+    x = np.asarray(coords_bohr, dtype=float).ravel()
+    columns = []
+    for index in range(len(x)):
+        displaced = x.copy()
+        displaced[index] += step_bohr
+        plus = gradient_of(displaced.reshape(-1, 3)).ravel()
+        displaced[index] -= 2 * step_bohr
+        minus = gradient_of(displaced.reshape(-1, 3)).ravel()
+        columns.append((plus - minus) / (2 * step_bohr))
+    hessian = np.array(columns).T
+    return 0.5 * (hessian + hessian.T) if symmetrise else hessian
+
+
+def analyse(engine, masses_amu, coords_bohr, dihedral_atoms, temperatures_k, freeze_torsion=False):
+    """Vibrations of one structure; freeze_torsion projects the dihedral out (a constrained point)."""
+    hessian = finite_difference_hessian(lambda c: engine.energy_and_gradient(c)[1], coords_bohr)
+    torsion = [geometry.dihedral_gradient(np.asarray(coords_bohr), *dihedral_atoms).ravel()]
+    frequencies, _ = harmonic_frequencies(hessian, masses_amu, coords_bohr, torsion if freeze_torsion else None)
+    imaginary = int(np.sum(frequencies < 0))
+    along = None
+    if imaginary and not freeze_torsion:
+        frozen, _ = harmonic_frequencies(hessian, masses_amu, coords_bohr, torsion)
+        along = int(np.sum(frozen < 0)) < imaginary
+    corrections = tuple(
+        rrho_thermo(frequencies, masses_amu, coords_bohr, t,
+                    quasi_harmonic_cutoff_cm1=QUASI_HARMONIC_CUTOFF_CM1).gibbs_correction_kcal_mol
+        for t in temperatures_k
+    )
+    return Vibrations(tuple(float(f) for f in frequencies), imaginary, along, corrections)
+
+
+def _with_vibrations(records, analysed):
+    return tuple(
+        replace(r, frequencies_cm1=v.frequencies_cm1, imaginary_count=v.imaginary_count,
+                imaginary_along_torsion=v.imaginary_along_torsion, gibbs_corrections_kcal_mol=v.gibbs_corrections_kcal_mol)
+        for r, v in zip(records, analysed)
+    )
+
+
+def _analyse_all(records, engine, masses, atoms, temperatures, symmetric):
+    """Vibrations of each record; a mirror-image record (symmetric profile) reuses its partner's."""
+    done, results = {}, []
+    for record in records:
+        key = round(abs(record.angle_deg), 1) if symmetric else round(record.angle_deg, 1)
+        if key not in done:
+            done[key] = analyse(engine, masses, record.coords_bohr, atoms, temperatures)
+        results.append(done[key])
+    return results
+
+
+def rrho_populations(minima, temperatures_k):
+    """Populations of the s-cis and s-trans minima from E_el + (G - E_el) at each temperature."""
+    populations = []
+    for n, t in enumerate(temperatures_k):
+        free = [m.energy_hartree * HARTREE_KCAL_MOL + m.gibbs_corrections_kcal_mol[n] for m in minima]
+        fractions = conformer_populations(free, t)
+        s_cis = float(sum(f for f, m in zip(fractions, minima) if abs(m.angle_deg) < 90.0))
+        s_trans = 1.0 - s_cis
+        delta_g = -rt_kcal_mol(t) * math.log(s_cis / s_trans) if 0 < s_cis < 1 else float("nan")
+        populations.append(RrhoPopulations(t, s_cis, s_trans, delta_g))
+    return tuple(populations)
+
+
+def readiness(minima, planar, temperatures_k):
+    """Readiness records: planar s-cis (a StationaryRecord with torsion-frozen corrections) vs the minima."""
+    lowest_e = min(m.energy_hartree for m in minima)
+    records = []
+    for n, t in enumerate(temperatures_k):
+        lowest_g = min(m.energy_hartree * HARTREE_KCAL_MOL + m.gibbs_corrections_kcal_mol[n] for m in minima)
+        delta_g = planar.energy_hartree * HARTREE_KCAL_MOL + planar.gibbs_corrections_kcal_mol[n] - lowest_g
+        records.append(Readiness(t, delta_g, (planar.energy_hartree - lowest_e) * HARTREE_KCAL_MOL,
+                                 math.exp(-delta_g / rt_kcal_mol(t))))
+    return tuple(records)
+
+
+def add_free_energies(bond_scan, relaxer, masses_amu, settings, planar_scis_start=None):
+    """The bond scan with vibrations at its minima and maxima, RRHO populations and, when
+    planar_scis_start (coords, hessian) is given (dienes), the planar s-cis record and readiness."""
+    engine, atoms, temperatures = relaxer.engine, bond_scan.dihedral_atoms, settings.temperatures_k
+    minima = _with_vibrations(
+        bond_scan.minima, _analyse_all(bond_scan.minima, engine, masses_amu, atoms, temperatures, bond_scan.symmetric))
+    maxima = _with_vibrations(
+        bond_scan.maxima, _analyse_all(bond_scan.maxima, engine, masses_amu, atoms, temperatures, bond_scan.symmetric))
+    update = dict(minima=minima, maxima=maxima, rrho_populations=rrho_populations(minima, temperatures))
+    if planar_scis_start is not None and minima:
+        from .records import StationaryRecord
+
+        coords, hessian = planar_scis_start
+        result = relaxer.relax(coords, settings.refine_convergence, hessian, atoms, 0.0)
+        if not np.isfinite(result.energy):
+            raise CalculationError("the planar s-cis structure could not be optimised")
+        vib = analyse(engine, masses_amu, result.x.reshape(-1, 3), atoms, temperatures, freeze_torsion=True)
+        planar = StationaryRecord(
+            "planar s-cis", 0.0, 0.0, result.energy, "constrained at 0 deg, torsion frozen in the frequencies",
+            result.converged, result.x.reshape(-1, 3), frequencies_cm1=vib.frequencies_cm1,
+            imaginary_count=vib.imaginary_count, imaginary_along_torsion=vib.imaginary_along_torsion,
+            gibbs_corrections_kcal_mol=vib.gibbs_corrections_kcal_mol,
+        )
+        update.update(planar_scis=planar, readiness=readiness(minima, planar, temperatures))
+    return replace(bond_scan, **update)
