@@ -35,6 +35,7 @@ class BatchOptions:
     cluster: str | None = None  # Dask scheduler address; replaces local workers
     retry_failed: bool = False
     timeout_per_compound_s: float | None = None
+    rescore: str | None = None  # DFT level to re-score every scan with (rescore.parse_level)
 
     def check(self):
         if self.workers is not None and self.workers < 1:
@@ -89,6 +90,8 @@ def scan_compound(job):
             unpaired_electrons=given["unpaired_electrons"], settings=job["settings"], time_limit_s=job["time_limit_s"],
         )
         summary = summary_dict(result)
+        if job.get("rescore"):
+            summary = _rescored(result, summary, job)
         # drawing here keeps the single writing process free to take the next outcome
         outcome.update(status="done", summary=summary, structures=structure_texts(result),
                        figures=render_figures(summary))
@@ -103,9 +106,26 @@ def scan_compound(job):
     return outcome
 
 
-def make_job(record, settings, time_limit_s):
+def _rescored(result, summary, job):
+    """The summary re-scored at the job's DFT level (single points one after the other in this worker)."""
+    import math
+
+    from .rescore import parse_level, rescore_summary
+    from .units import BOHR_ANGSTROM
+
+    frames = {
+        entry["bond"]: [p.coords_bohr * BOHR_ANGSTROM for p in bond.points
+                        if not p.mirrored and math.isfinite(p.energy_hartree)]
+        for entry, bond in zip(summary["bonds"], result.bonds)
+    }
+    return rescore_summary(summary, frames, list(result.symbols), parse_level(job["rescore"]), job["threads"])
+
+
+def make_job(record, settings, options):
     """The picklable work item of one compound (record: RunStore.compound)."""
-    return {"name": record["name"], "input": record["input"], "settings": settings, "time_limit_s": time_limit_s}
+    return {"name": record["name"], "input": record["input"], "settings": settings,
+            "time_limit_s": options.timeout_per_compound_s, "rescore": options.rescore,
+            "threads": options.threads_per_worker}
 
 
 def _local_outcomes(jobs, workers, threads_per_worker):
@@ -177,12 +197,16 @@ def run_batch(list_path, out_dir, settings, options=BatchOptions(), progress=Non
             log.warning("%s (%s): %s", list_path, entry.where, entry.note)
     out_dir = Path(out_dir)
     with RunStore(out_dir) as store:
-        store.claim_settings(settings.as_dict(), list_path)
+        claimed = settings.as_dict()
+        if options.rescore:
+            from .rescore import parse_level
+
+            claimed["rescore_level"] = parse_level(options.rescore).label
+        store.claim_settings(claimed, list_path)
         store.add_compounds(entries)
         todo = store.names("pending") + (store.names("failed") if options.retry_failed else [])
         listed = {entry.name for entry in entries if not entry.problem}
-        jobs = [make_job(store.compound(name), settings, options.timeout_per_compound_s)
-                for name in todo if name in listed]
+        jobs = [make_job(store.compound(name), settings, options) for name in todo if name in listed]
         workers = options.workers or usable_cores()
         session = store.start_session(command, None if options.cluster else workers, options.cluster)
         if options.cluster:

@@ -52,6 +52,8 @@ def _add_batch_options(parser):
     parser.add_argument("--retry-failed", action="store_true", help="compute failed compounds again")
     parser.add_argument("--timeout-per-compound", type=float, metavar="SECONDS",
                         help="give up on a compound after this many seconds (checked between gradients)")
+    parser.add_argument("--rescore", metavar="LEVEL",
+                        help="re-score every scan with DFT single points (cheap, standard, careful or functional/basis)")
 
 
 def _add_fit_options(parser):
@@ -142,11 +144,29 @@ def format_summary(summary, out_dir):
                 f"  warning: the Fourier fit misses its {fourier['target_rmse_kcal_mol']} kcal/mol target; "
                 "fitted minima and populations are approximate: try a smaller --step"
             )
+    for entry in summary["bonds"]:
+        lines += _rescored_lines(entry)
     for failed in summary["failed_bonds"]:
         lines.append(f"bond {failed['bond']} FAILED: {failed['reason']}")
     lines.append(f"files: {out_dir}/")
     lines.append("Semi-empirical estimate (typical torsion error ~1 kcal/mol): confirm decisions at a higher level.")
     return "\n".join(lines)
+
+
+def _rescored_lines(entry):
+    """Terminal lines of a bond's DFT re-scored profile and the disagreement between the methods."""
+    if "rescored" not in entry:
+        return []
+    rescored, verdict = entry["rescored"], entry["method_disagreement"]
+    minima = "   ".join(f"{m['angle_deg']:7.1f}° {m['energy_rel_kcal_mol']:6.2f}" for m in rescored["minima"])
+    lines = [f"bond {entry['bond']} re-scored at {entry['rescore_level']} (same geometries; extrema interpolated on the fit)",
+             f"  minima (kcal/mol):   {minima}"]
+    for p in rescored["populations"]:
+        lines.append(f"  {p['temperature_k']:g} K: s-cis {100 * p['s_cis']:.1f}%, |φ| ≤ {p['scis_window_deg']:g}° "
+                     f"{100 * p['scis_window']:.2f}%")
+    lines.append(f"  difference to {entry['method']}: RMS {verdict['rms_kcal_mol']:.2f}, max {verdict['max_kcal_mol']:.2f} kcal/mol"
+                 + (f"  WARNING: {verdict['warning']}" if verdict["warning"] else ""))
+    return lines
 
 
 def _vibration_lines(entry):
@@ -179,6 +199,10 @@ def run_scan(args):
     )
     out_dir = args.out or Path("results") / result.name
     summary = write_results(result, out_dir)
+    if args.rescore:
+        from .output.rescoring import rescore_folder
+
+        summary = rescore_folder(out_dir, args.rescore, args.dft_threads)
     print(format_summary(summary, out_dir))
     if args.fit_for:
         for label, record in fit_folder(out_dir, options=options).items():
@@ -186,10 +210,20 @@ def run_scan(args):
     return 3 if result.failed_bonds else 0
 
 
+def run_rescore(args):
+    from .output.rescoring import rescore_folder
+
+    summary = rescore_folder(args.folder, args.level, args.threads)
+    for entry in summary["bonds"]:
+        print("\n".join(_rescored_lines(entry)))
+    print(f"files: {args.folder}/ (summary.json, bond_<j-k>_profile.csv and figures updated)")
+    return 0
+
+
 def run_fit(args):
     from .output.forcefield import fit_folder
 
-    records = fit_folder(args.folder, args.bond, _fit_options(args), args.mm_energies)
+    records = fit_folder(args.folder, args.bond, _fit_options(args), args.mm_energies, args.quantum)
     for label, record in records.items():
         print(format_torsion_fit(label, record))
     print(f"files: {args.folder}/bond_<j-k>_torsion_fit.json, _torsion_terms.csv, _torsion_openmm.xml, _torsion_fit.png")
@@ -215,7 +249,7 @@ def _batch_options(args):
 
     return BatchOptions(
         workers=args.workers, threads_per_worker=args.threads_per_worker, cluster=args.cluster,
-        retry_failed=args.retry_failed, timeout_per_compound_s=args.timeout_per_compound,
+        retry_failed=args.retry_failed, timeout_per_compound_s=args.timeout_per_compound, rescore=args.rescore,
     )
 
 
@@ -262,6 +296,10 @@ def build_parser():
     scan_parser.add_argument("--name", help="name for the molecule and its result folder")
     scan_parser.add_argument("--out", type=Path, help="result folder (default results/<name>)")
     _add_scan_options(scan_parser)
+    scan_parser.add_argument("--rescore", metavar="LEVEL",
+                             help="re-score the scan geometries with DFT: cheap, standard, careful or functional/basis "
+                                  "(needs the [dft] extra)")
+    scan_parser.add_argument("--dft-threads", type=int, default=None, help="threads for DFT (default: all cores)")
     scan_parser.add_argument("--fit-for", choices=["mmff94"],
                              help="also fit dihedral terms that complete this MM model (see 'fit')")
     _add_fit_options(scan_parser)
@@ -275,7 +313,16 @@ def build_parser():
                             help="MM energies without this bond's torsion terms, one row per frame of "
                                  "bond_<j-k>_scan.xyz (column energy_kcal_mol or energy_kj_mol)")
     _add_fit_options(fit_parser)
+    fit_parser.add_argument("--quantum", choices=["gfn", "rescored"], default="gfn",
+                            help="fit to the scan's own energies or to its DFT re-scored ones")
     fit_parser.set_defaults(handler=run_fit)
+
+    rescore_parser = commands.add_parser("rescore", help="re-score a finished scan's geometries with DFT single points")
+    rescore_parser.add_argument("folder", type=Path, help="result folder of a scan")
+    rescore_parser.add_argument("--level", required=True,
+                                help="cheap, standard, careful, or functional[-d3bj|-d3zero|-d4]/basis")
+    rescore_parser.add_argument("--threads", type=int, default=None, help="threads for DFT (default: all cores)")
+    rescore_parser.set_defaults(handler=run_rescore)
 
     bonds_parser = commands.add_parser("bonds", help="list the conjugated single bonds a scan would cover")
     _add_molecule_options(bonds_parser)

@@ -19,7 +19,7 @@ from .mm import Mmff94
 from .torsionfit import (
     DEFAULT_MAX_PERIODICITY, MAX_PERIODICITY, RIDGE, boltzmann_weights, fit_terms, profile_errors, term_energy,
 )
-from .units import wrap_deg
+from .entries import computed_points, points_with_frames
 
 TERM_SHARING = ("all terms on the scanned dihedral's quartet (dihedral_atoms); the MM torsion terms of every "
                 "atom quartet about the bond were removed before fitting, so these terms replace them all")
@@ -42,47 +42,38 @@ class FitOptions:
             raise InputError("--weight-temperature must be above 0 K")
 
 
-def _circle(entry, frame_values):
-    """Expand per-frame values to every profile point: (angles, QM energies, values per point).
-
-    frame_values: arrays indexed like the computed frames (non-mirrored points with an energy).
-    """
-    computed = [p for p in entry["points"] if not p["mirrored"] and p["energy_rel_kcal_mol"] is not None]
-    index = {round(wrap_deg(p["angle_deg"]), 6): n for n, p in enumerate(computed)}
-    angles, qm, rows = [], [], []
-    for p in entry["points"]:
-        if p["energy_rel_kcal_mol"] is None:
-            continue
-        source = -p["angle_deg"] if p["mirrored"] else p["angle_deg"]
-        n = index.get(round(wrap_deg(source), 6))
-        if n is None:
-            continue
-        angles.append(p["measured_angle_deg"] if not p["mirrored"] else -computed[n]["measured_angle_deg"])
-        qm.append(p["energy_rel_kcal_mol"])
-        rows.append(n)
-    return np.array(angles), np.array(qm), [np.asarray(v)[rows] for v in frame_values]
+def _circle(entry, frame_values, energy_key):
+    """Every profile point's measured angle, quantum energy (entry[energy_key]) and per-frame values."""
+    pairs = points_with_frames(entry)
+    computed = computed_points(entry)
+    angles = [p["measured_angle_deg"] if not p["mirrored"] else -computed[n]["measured_angle_deg"] for p, n in pairs]
+    energies = [p[energy_key] for p, _ in pairs]
+    rows = [n for _, n in pairs]
+    return np.array(angles), np.array(energies, dtype=float), [np.asarray(v)[rows] for v in frame_values]
 
 
-def computed_frame_count(entry):
-    """Number of relaxed frames a bond's XYZ file holds (computed points with an energy)."""
-    return sum(1 for p in entry["points"] if not p["mirrored"] and p["energy_rel_kcal_mol"] is not None)
-
-
-def fit_torsion(mol, entry, frames_angstrom, options=FitOptions(), mm_energies=None, mm_label=None):
+def fit_torsion(mol, entry, frames_angstrom, options=FitOptions(), mm_energies=None, mm_label=None,
+                quantum="gfn"):
     """The torsion_fit record of one scanned bond.
 
     mol: RDKit molecule with hydrogens in the scan's atom order; entry: the bond's summary entry;
     frames_angstrom: relaxed coordinates of the computed frames, in XYZ-file order;
     mm_energies: per-frame MM energies without the bond's torsion terms (kcal/mol) from any force
-    field, or None for the built-in MMFF94.
+    field, or None for the built-in MMFF94. quantum: "gfn" (the scan's energies) or "rescored"
+    (the DFT re-scored energies of the same geometries).
     """
     started = time.perf_counter()
     options.check()
-    if len(frames_angstrom) != computed_frame_count(entry):
+    if len(frames_angstrom) != len(computed_points(entry)):
         raise InputError(
-            f"bond {entry['bond']}: {len(frames_angstrom)} relaxed frames for {computed_frame_count(entry)} scan "
+            f"bond {entry['bond']}: {len(frames_angstrom)} relaxed frames for {len(computed_points(entry))} scan "
             "points; the scan folder is incomplete: rerun the scan"
         )
+    energy_key = "energy_rel_kcal_mol"
+    if quantum == "rescored":
+        if "rescored" not in entry:
+            raise InputError(f"bond {entry['bond']} has no re-scored energies; run 'torsionscan rescore' first")
+        energy_key = "energy_rescored_rel_kcal_mol"
     atoms = tuple(a - 1 for a in entry["dihedral_atoms"])
     try:
         mmff = Mmff94(mol, atoms[1:3])
@@ -95,7 +86,7 @@ def fit_torsion(mol, entry, frames_angstrom, options=FitOptions(), mm_energies=N
         model = mmff.name
     else:
         full, without, model = None, np.asarray(mm_energies, dtype=float), mm_label or "user-supplied MM energies"
-    angles, qm, (without,) = _circle(entry, [without])
+    angles, qm, (without,) = _circle(entry, [without], energy_key)
     weights = None if options.weight_temperature_k is None else boltzmann_weights(qm, options.weight_temperature_k)
     fit = fit_terms(angles, qm - without, options.max_periodicity, options.free_phases, weights)
     with_fit = without + term_energy(fit.terms, angles)
@@ -103,6 +94,7 @@ def fit_torsion(mol, entry, frames_angstrom, options=FitOptions(), mm_energies=N
     rmse_after, max_after = profile_errors(qm, with_fit)
     record = {
         "mm_model": model,
+        "quantum_profile": entry.get("rescore_level") if quantum == "rescored" else entry["method"],
         "mm_geometry": MM_GEOMETRY,
         "form": "E = sum_n k_n [1 + cos(n phi - phase_n)], phi the dihedral of dihedral_atoms",
         "dihedral_atoms": list(entry["dihedral_atoms"]),
@@ -132,7 +124,7 @@ def fit_torsion(mol, entry, frames_angstrom, options=FitOptions(), mm_energies=N
     }
     curves = {"mm_without_torsion_kcal_mol": without, "mm_with_fit_kcal_mol": with_fit}
     if full is not None:
-        (full,) = _circle(entry, [full])[2]
+        (full,) = _circle(entry, [full], energy_key)[2]
         rmse_full, max_full = profile_errors(qm, full)
         record.update(before_model=f"{model} with its own torsion terms", rmse_before_kcal_mol=round(rmse_full, 5),
                       max_error_before_kcal_mol=round(max_full, 5))

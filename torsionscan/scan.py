@@ -388,7 +388,8 @@ def _neighbours(angle, others):
     return below, above
 
 
-def _barriers(minima, maxima):
+def barriers_between(minima, maxima):
+    """Barriers (records.Barrier) from each minimum over its neighbouring maximum in both directions."""
     barriers = []
     if not minima or not maxima:
         return barriers
@@ -450,7 +451,7 @@ def scan_bond(molecule, bond, relaxer, start, settings):
         dihedral_atoms=bond.atoms, conjugated=bond.conjugated, symmetric=scanner.symmetric,
         points=tuple(sorted(points, key=lambda p: p.angle_deg)), reference_energy_hartree=reference,
         fit=fit, minima=tuple(minima), maxima=tuple(maxima),
-        barriers=tuple(_barriers(minima, maxima)), populations=populations,
+        barriers=tuple(barriers_between(minima, maxima)), populations=populations,
         hysteresis=tuple(hysteresis),
         gradient_evaluations_total=relaxer.engine.evaluations - evaluations_before,
         wall_time_s=time.perf_counter() - began,

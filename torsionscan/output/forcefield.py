@@ -60,7 +60,7 @@ def fit_figure(name, record):
     angles = [p["angle_deg"] for p in profile]
     fig, ax = plt.subplots(figsize=(8.0, 5.5), dpi=110)
     ax.plot(angles, [p["qm_kcal_mol"] for p in profile], "o-", color="#1f5fa8", lw=1.5, ms=5,
-            label="quantum (relaxed GFN2-xTB scan)")
+            label=f"quantum ({record.get('quantum_profile') or 'relaxed scan'})")
     curves = [("mm_without_torsion_kcal_mol", "MM without this bond's torsion terms", "#999999", ":"),
               ("mm_full_kcal_mol", f"{record['mm_model']} as it is", "#b23a2e", "--"),
               ("mm_with_fit_kcal_mol", "MM with the fitted terms", "#2a7f3f", "-")]
@@ -140,14 +140,15 @@ def read_scan_bond(folder, summary, label):
     return summary["bonds"][labels.index(label)], records[0], _read_xyz_frames(xyz)
 
 
-def fit_folder(folder, bond=None, options=None, mm_energies_path=None):
+def fit_folder(folder, bond=None, options=None, mm_energies_path=None, quantum="gfn"):
     """Fit torsion terms for the bond(s) of a scan folder, write their files and add each record
     to summary.json as the bond's torsion_fit; returns {bond label: record}.
 
     Without mm_energies_path every scanned bond (or `bond`) is fitted against MMFF94; a table of
     MM energies belongs to one bond, named by `bond` when the folder holds several.
     """
-    from ..forcefield import FitOptions, computed_frame_count, fit_torsion
+    from ..entries import computed_points
+    from ..forcefield import FitOptions, fit_torsion
     from ..mm import read_mm_energies
     from .summary import write_summary
 
@@ -162,9 +163,9 @@ def fit_folder(folder, bond=None, options=None, mm_energies_path=None):
         entry, mol, frames = read_scan_bond(folder, summary, label)
         energies = None
         if mm_energies_path is not None:
-            energies = read_mm_energies(mm_energies_path, computed_frame_count(entry))
+            energies = read_mm_energies(mm_energies_path, len(computed_points(entry)))
         source = None if mm_energies_path is None else f"user-supplied ({Path(mm_energies_path).name})"
-        records[label] = fit_torsion(mol, entry, frames, options or FitOptions(), energies, source)
+        records[label] = fit_torsion(mol, entry, frames, options or FitOptions(), energies, source, quantum)
         write_torsion_fit(summary["name"], records[label], label, folder)
     for entry in summary["bonds"]:
         if entry["bond"] in records:

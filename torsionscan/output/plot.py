@@ -43,6 +43,8 @@ def profile_figure(name, entry, title=None):
         if bad:
             ax.plot(*zip(*bad), "x", color="red", ms=8, ls="none", label="not converged")
 
+    if "rescored" in entry:
+        _rescored_overlay(ax, entry, dense)
     for records, marker, colour, prefix, offset in (
         (entry["minima"], "v", "#2a7f3f", "min ", -26), (entry["maxima"], "^", "#b23a2e", "", 8)
     ):
@@ -69,12 +71,29 @@ def profile_figure(name, entry, title=None):
     _conjugation_panel(lower, entry["points"])
     lower.set_xlabel("dihedral φ / degrees   (0 = s-cis, ±180 = s-trans)")
     top = max(series.value(dense).max(), 1.0)
+    if "rescored" in entry:
+        rescored = entry["rescored"]["fourier"]["series_kcal_mol"]
+        top = max(top, FourierSeries(rescored["constant"], rescored["cos"], rescored["sin"]).value(dense).max())
     ax.set_ylim(-0.12 * top - 0.3, 1.25 * top + 0.3)
     label = f"{name}: dihedral {'-'.join(str(a) for a in entry['dihedral_atoms'])}"
     ax.set_title(title or f"{label} — relaxed {entry['method']} scan (semi-empirical estimate)", fontsize=10)
     ax.legend(fontsize=7, loc="lower center", bbox_to_anchor=(0.5, 1.06), ncol=2, frameon=False)
     fig.tight_layout()
     return fig
+
+
+def _rescored_overlay(ax, entry, dense):
+    """The DFT re-scored profile (points and fit) over the semi-empirical one."""
+    coefficients = entry["rescored"]["fourier"]["series_kcal_mol"]
+    series = FourierSeries(coefficients["constant"], coefficients["cos"], coefficients["sin"])
+    ax.plot(dense, series.value(dense), "--", color="#d95f02", lw=1.4, label=f"re-scored fit: {entry['rescore_level']}")
+    shown = [p for p in entry["points"] if p.get("energy_rescored_rel_kcal_mol") is not None]
+    ax.plot([p["angle_deg"] for p in shown], [p["energy_rescored_rel_kcal_mol"] for p in shown], "D", color="#d95f02",
+            ms=4, ls="none", label="re-scored points (same geometries)")
+    warning = entry["method_disagreement"]["warning"]
+    if warning:
+        ax.text(0.5, 0.97, "methods disagree: " + warning.split(":")[0], transform=ax.transAxes, ha="center", va="top",
+                fontsize=7, color="#b23a2e", wrap=True)
 
 
 def _conjugation_panel(ax, points):

@@ -31,7 +31,10 @@ def table_columns(temperatures_k, extra_columns):
         key = _temperature_key(t)
         columns += [f"s_cis_{key}", f"scis_window_{key}", f"dG_scis_minus_strans_{key}_kcal_mol",
                     f"s_cis_rrho_{key}", f"dG_to_planar_scis_{key}_kcal_mol"]
-    columns += ["fit_rmse_kcal_mol", "fit_target_met", "hysteresis", "compound_wall_time_s"]
+    columns += ["fit_rmse_kcal_mol", "fit_target_met", "hysteresis", "rescore_level", "rescored_global_min_deg",
+                "rescored_barrier_to_other_region_kcal_mol"]
+    columns += [f"rescored_s_cis_{_temperature_key(t)}" for t in temperatures_k]
+    columns += ["method_disagreement_max_kcal_mol", "method_disagreement_warning", "compound_wall_time_s"]
     return columns + [c for c in extra_columns if c not in columns]
 
 
@@ -41,7 +44,21 @@ def _lowest(minima, in_region):
 
 
 def bond_row(entry):
-    """The table values of one scanned bond (summary entry) that come from its profile."""
+    """The table values of one scanned bond (summary entry), and of its re-scored profile if any."""
+    row = _profile_row(entry)
+    if "rescored" in entry:
+        rescored = _profile_row({**entry, **entry["rescored"], "points": []})
+        row.update({"rescore_level": entry["rescore_level"],
+                    "rescored_global_min_deg": rescored["global_min_deg"],
+                    "rescored_barrier_to_other_region_kcal_mol": rescored["barrier_to_other_region_kcal_mol"],
+                    "method_disagreement_max_kcal_mol": entry["method_disagreement"]["max_kcal_mol"],
+                    "method_disagreement_warning": entry["method_disagreement"]["warning"] or ""})
+        for p in entry["rescored"]["populations"]:
+            row[f"rescored_s_cis_{_temperature_key(p['temperature_k'])}"] = p["s_cis"]
+    return row
+
+
+def _profile_row(entry):
     minima = entry["minima"]
     best = _lowest(minima, lambda a: True)
     scis = _lowest(minima, lambda a: a < 90.0)

@@ -114,6 +114,44 @@ def solvent_dict(settings):
     return {"name": settings["solvent"], "model": (settings.get("solvation_model") or "alpb").upper()}
 
 
+def profile_analysis_dict(analysis, ref):
+    """The fit, minima, maxima, barriers and populations of a profile (a BondScan, or any object with
+    fit, minima, maxima, barriers, populations and rrho_populations); energies relative to ref (Hartree)."""
+    series = analysis.fit.series
+    return {
+        "fourier": {
+            "order": series.order,
+            "symmetric": analysis.fit.symmetric,
+            "rmse_kcal_mol": _round(analysis.fit.rmse_kcal_mol, 5),
+            "target_rmse_kcal_mol": FIT_TARGET_KCAL_MOL,
+            "target_met": analysis.fit.rmse_kcal_mol <= FIT_TARGET_KCAL_MOL,
+            "max_residual_kcal_mol": _round(analysis.fit.max_residual_kcal_mol, 5),
+            "series_kcal_mol": {
+                "form": "E = constant + sum_n [cos_n cos(n phi) + sin_n sin(n phi)]",
+                "constant": series.constant, "cos": list(series.cos), "sin": list(series.sin),
+            },
+            "force_field": {
+                "form": "E = constant + sum_n V_n/2 [1 + cos(n phi - phase_n)]",
+                "constant_kcal_mol": series.force_field_constant,
+                "terms": [
+                    {"periodicity": t.periodicity, "v_kcal_mol": t.barrier_kcal_mol,
+                     "v_kj_mol": t.barrier_kj_mol, "phase_deg": t.phase_deg}
+                    for t in series.force_field_terms()
+                ],
+            },
+        },
+        "minima": [_stationary_dict(m, ref) for m in analysis.minima],
+        "maxima": [_stationary_dict(m, ref) for m in analysis.maxima],
+        "barriers": [
+            {"from_minimum_deg": _round(b.from_minimum_deg, 3), "over_maximum_deg": _round(b.over_maximum_deg, 3),
+             "to_minimum_deg": _round(b.to_minimum_deg, 3), "height_kcal_mol": _round(b.height_kcal_mol, 4),
+             "height_kj_mol": _round(b.height_kcal_mol * KCAL_KJ, 4), "converged": b.converged}
+            for b in analysis.barriers
+        ],
+        "populations": _populations(analysis),
+    }
+
+
 def bond_dict(result, bond):
     """The summary entry of one scanned dihedral."""
     ref = bond.reference_energy_hartree
@@ -142,36 +180,7 @@ def bond_dict(result, bond):
         "solvent": solvent_dict(result.settings),
         "reference_energy_hartree": ref,
         "points": points,
-        "fourier": {
-            "order": series.order,
-            "symmetric": bond.fit.symmetric,
-            "rmse_kcal_mol": _round(bond.fit.rmse_kcal_mol, 5),
-            "target_rmse_kcal_mol": FIT_TARGET_KCAL_MOL,
-            "target_met": bond.fit.rmse_kcal_mol <= FIT_TARGET_KCAL_MOL,
-            "max_residual_kcal_mol": _round(bond.fit.max_residual_kcal_mol, 5),
-            "series_kcal_mol": {
-                "form": "E = constant + sum_n [cos_n cos(n phi) + sin_n sin(n phi)]",
-                "constant": series.constant, "cos": list(series.cos), "sin": list(series.sin),
-            },
-            "force_field": {
-                "form": "E = constant + sum_n V_n/2 [1 + cos(n phi - phase_n)]",
-                "constant_kcal_mol": series.force_field_constant,
-                "terms": [
-                    {"periodicity": t.periodicity, "v_kcal_mol": t.barrier_kcal_mol,
-                     "v_kj_mol": t.barrier_kj_mol, "phase_deg": t.phase_deg}
-                    for t in series.force_field_terms()
-                ],
-            },
-        },
-        "minima": [_stationary_dict(m, ref) for m in bond.minima],
-        "maxima": [_stationary_dict(m, ref) for m in bond.maxima],
-        "barriers": [
-            {"from_minimum_deg": _round(b.from_minimum_deg, 3), "over_maximum_deg": _round(b.over_maximum_deg, 3),
-             "to_minimum_deg": _round(b.to_minimum_deg, 3), "height_kcal_mol": _round(b.height_kcal_mol, 4),
-             "height_kj_mol": _round(b.height_kcal_mol * KCAL_KJ, 4), "converged": b.converged}
-            for b in bond.barriers
-        ],
-        "populations": _populations(bond),
+        **profile_analysis_dict(bond, ref),
         "populations_note": POPULATION_NOTE + (RRHO_NOTE if bond.rrho_populations else ""),
         "planar_scis": _stationary_dict(bond.planar_scis, ref) if bond.planar_scis else None,
         "cycloaddition_readiness": _readiness(bond),
@@ -223,7 +232,8 @@ def write_summary(summary, path):
 def write_profile_table(bond_entry, path):
     """Write one dihedral's points (from its summary entry) as CSV."""
     columns = ["angle_deg", "measured_angle_deg", "energy_rel_kcal_mol", "energy_rel_kj_mol", "fit_kcal_mol",
-               "central_bond_order", "homo_lumo_gap_ev", "converged", "gradient_evaluations", "mirrored", "failure"]
+               "central_bond_order", "homo_lumo_gap_ev", "energy_rescored_rel_kcal_mol", "converged",
+               "gradient_evaluations", "mirrored", "failure"]
     with path.open("w", newline="") as handle:
         writer = csv.DictWriter(handle, fieldnames=columns, extrasaction="ignore")
         writer.writeheader()
