@@ -3,6 +3,7 @@
 Run from the repository root:
   python benchmarks/scan_benchmark.py [compound-list.csv]          one molecule at a time
   python benchmarks/scan_benchmark.py --batch [compound-list.csv]  batch throughput
+  python benchmarks/scan_benchmark.py --rescore                    DFT re-scoring cost
 
 The first prints one row per scanned dihedral and totals, and the time of the MMFF94 residual
 and torsion-term fit relative to the scan. "x gradient" is the whole run (start
@@ -97,7 +98,35 @@ def batch_benchmark(list_path, repeats=3):
     print(f"Dask overhead vs 2 local workers: {100 * (walls['dask'] / walls['2 local workers'] - 1):+.0f}%")
 
 
+def rescore_benchmark(threads=2):
+    """Seconds per DFT single point for each preset on butadiene and a 20-atom diene, and the whole
+    re-scoring as a multiple of the GFN2-xTB scan (single points x computed frames / scan time)."""
+    from torsionscan.batch import usable_cores
+    from torsionscan.rescore import PRESETS, single_point
+
+    threads = min(threads, usable_cores())
+    print(f"{'molecule':18s} {'atoms':>5s} {'frames':>6s} {'scan s':>7s} {'preset':9s} {'level':28s} "
+          f"{'s/point':>8s} {'x scan':>7s}")
+    for name, smiles in (("butadiene", "C=CC=C"), ("phenyl-diene", "C=C/C=C/c1ccccc1")):
+        began = time.perf_counter()
+        result = torsionscan.scan(smiles, name=name, settings=torsionscan.ScanSettings(frequencies=False))
+        scan_s = time.perf_counter() - began
+        bond = result.bonds[0]
+        frames = [p.coords_bohr * BOHR_ANGSTROM for p in bond.points if not p.mirrored]
+        single_point(list(result.symbols), frames[0], PRESETS["cheap"], threads=threads)  # loads PySCF's pieces
+        for preset, level in PRESETS.items():
+            began = time.perf_counter()
+            single_point(list(result.symbols), frames[0], level, threads=threads)
+            per_point = time.perf_counter() - began
+            print(f"{name:18s} {len(result.symbols):5d} {len(frames):6d} {scan_s:7.2f} {preset:9s} {level.label:28s} "
+                  f"{per_point:8.1f} {per_point * len(frames) / scan_s:7.0f}")
+    print(f"(one single point per preset, {threads} threads; 'x scan' = all frames of the bond / GFN2-xTB scan time)")
+
+
 def main(argv):
+    if "--rescore" in argv:
+        rescore_benchmark()
+        return
     arguments = [a for a in argv[1:] if a != "--batch"]
     list_path = Path(arguments[0]) if arguments else Path("inputs/demo_compounds.csv")
     if "--batch" in argv:

@@ -40,9 +40,9 @@ class Level:
 
 PRESETS = {
     "cheap": Level(
-        "PBE-D3(BJ)/def2-SVP", "pbe", "def2-svp", "d3bj", "pbe",
-        "PBE: Perdew, Burke, Ernzerhof, Phys. Rev. Lett. 1996, 77, 3865; D3(BJ): Grimme, Ehrlich, Goerigk, "
-        "J. Comput. Chem. 2011, 32, 1456; def2-SVP: Weigend, Ahlrichs, Phys. Chem. Chem. Phys. 2005, 7, 3297",
+        "CAM-B3LYP-D3(BJ)/def2-SV(P)", "camb3lyp", "def2-sv(p)", "d3bj", "camb3lyp",
+        "CAM-B3LYP: Yanai, Tew, Handy, Chem. Phys. Lett. 2004, 393, 51; D3(BJ): Grimme, Ehrlich, Goerigk, "
+        "J. Comput. Chem. 2011, 32, 1456; def2-SV(P): Weigend, Ahlrichs, Phys. Chem. Chem. Phys. 2005, 7, 3297",
     ),
     "standard": Level(
         "CAM-B3LYP-D3(BJ)/def2-SVP", "camb3lyp", "def2-svp", "d3bj", "camb3lyp",
