@@ -112,3 +112,15 @@ def test_disagreement_fires_on_glyoxal_and_stays_quiet_on_styrene():
     _, styrene = _rescored("C=Cc1ccccc1", step=30.0)
     assert styrene["method_disagreement"]["warning"] is None
     assert styrene["method_disagreement"]["max_kcal_mol"] < 1.0
+
+
+@pytest.mark.parametrize("extra, words", [
+    (["--rescore", "nofunctional/def2-svp"], "PySCF cannot use it"),
+    (["--rescore", "standard", "--solvent", "water"], "gas phase only"),
+])
+def test_rescoring_problems_are_refused_before_the_scan(extra, words, capsys, tmp_path):
+    from torsionscan.cli import main
+
+    assert main(["scan", "C=CC=O", "--out", str(tmp_path / "x"), *extra]) == 2
+    assert words in capsys.readouterr().err
+    assert not (tmp_path / "x").exists()  # nothing was computed

@@ -78,3 +78,15 @@ def test_changed_settings_are_refused_with_the_differences_named(tmp_path):
 def test_opening_a_folder_without_a_run_is_a_clear_error(tmp_path):
     with pytest.raises(InputError, match="holds no batch run"):
         RunStore(tmp_path, create=False)
+
+
+def test_rescored_points_survive_the_store(tmp_path, butadiene_scan):
+    summary = json.loads(json.dumps(summary_dict(butadiene_scan)))
+    entry = summary["bonds"][0]
+    for n, point in enumerate(entry["points"]):  # stand-in values: this checks the plumbing only
+        point["energy_rescored_rel_kcal_mol"] = 0.5 * n
+    entry.update(rescore_level="X/def2-svp", rescored={"minima": []}, method_disagreement={"warning": None})
+    with RunStore(tmp_path) as store:
+        store.add_compounds([_entry("butadiene", "C=CC=C")])
+        store.record_done("butadiene", summary, {}, store.start_session("t"), 1.0)
+        assert json.dumps(store.summary("butadiene")) == json.dumps(summary)

@@ -8,7 +8,8 @@ spent on separate processes. This must happen before numpy or an engine library 
 
 import os
 
-for _variable in ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS"):
+THREAD_VARIABLES = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS")
+for _variable in THREAD_VARIABLES:
     os.environ.setdefault(_variable, "1")
 
 __version__ = "0.1.0"

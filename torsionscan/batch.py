@@ -7,23 +7,25 @@ files, committing every compound as soon as its outcome arrives. Rerunning on th
 skips finished compounds; failed ones are retried on request.
 """
 
+import json
 import logging
 import multiprocessing
 import os
 import resource
 import socket
+import sqlite3
 import time
 from concurrent.futures import ProcessPoolExecutor, as_completed
 from concurrent.futures.process import BrokenProcessPool
 from dataclasses import dataclass
 from pathlib import Path
 
+from . import THREAD_VARIABLES
 from .compounds import read_compound_list
 from .errors import CalculationError, InputError, TimeLimitExceeded, TorsionScanError
 from .store import RunStore, compound_folder
 
 log = logging.getLogger(__name__)
-THREAD_VARIABLES = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS")
 
 
 @dataclass(frozen=True)
@@ -92,6 +94,7 @@ def scan_compound(job):
         summary = summary_dict(result)
         if job.get("rescore"):
             summary = _rescored(result, summary, job)
+        json.dumps(summary, allow_nan=False)  # a value the store cannot hold fails this compound, here
         # drawing here keeps the single writing process free to take the next outcome
         outcome.update(status="done", summary=summary, structures=structure_texts(result),
                        figures=render_figures(summary))
@@ -118,7 +121,10 @@ def _rescored(result, summary, job):
                         if not p.mirrored and math.isfinite(p.energy_hartree)]
         for entry, bond in zip(summary["bonds"], result.bonds)
     }
-    return rescore_summary(summary, frames, list(result.symbols), parse_level(job["rescore"]), job["threads"])
+    try:
+        return rescore_summary(summary, frames, list(result.symbols), parse_level(job["rescore"]), job["threads"])
+    except TorsionScanError as error:  # keep the finished GFN-xTB scan; say why the DFT part is missing
+        return {**summary, "rescore_failure": str(error)}
 
 
 def make_job(record, settings, options):
@@ -173,12 +179,17 @@ def store_outcome(store, outcome, session_id, out_dir):
 
     common = dict(session_id=session_id, wall_time_s=outcome.get("wall_time_s"),
                   peak_memory_mb=outcome.get("peak_memory_mb"), worker=outcome.get("worker"))
-    if outcome["status"] == "done":
-        store.record_done(outcome["name"], outcome["summary"], outcome["structures"], **common)
-        write_compound_folder(outcome["summary"], outcome["structures"], compound_folder(out_dir, outcome["name"]),
-                              outcome["figures"])
-    else:
+    if outcome["status"] != "done":
         store.record_failed(outcome["name"], outcome["reason"], **common)
+        return
+    try:
+        store.record_done(outcome["name"], outcome["summary"], outcome["structures"], **common)
+    except (sqlite3.Error, ValueError, TypeError) as error:  # this compound only: the run carries on
+        outcome.update(status="failed", reason=f"could not store the result: {type(error).__name__}: {error}")
+        store.record_failed(outcome["name"], outcome["reason"], **common)
+        return
+    write_compound_folder(outcome["summary"], outcome["structures"], compound_folder(out_dir, outcome["name"]),
+                          outcome["figures"])
 
 
 def run_batch(list_path, out_dir, settings, options=BatchOptions(), progress=None, command="batch"):
@@ -199,9 +210,9 @@ def run_batch(list_path, out_dir, settings, options=BatchOptions(), progress=Non
     with RunStore(out_dir) as store:
         claimed = settings.as_dict()
         if options.rescore:
-            from .rescore import parse_level
+            from .rescore import check_rescoring
 
-            claimed["rescore_level"] = parse_level(options.rescore).label
+            claimed["rescore_level"] = check_rescoring(options.rescore, settings).label
         store.claim_settings(claimed, list_path)
         store.add_compounds(entries)
         todo = store.names("pending") + (store.names("failed") if options.retry_failed else [])

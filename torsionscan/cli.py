@@ -193,9 +193,14 @@ def run_scan(args):
 
     options = _fit_options(args)
     options.check()
+    settings = _settings(args)
+    if args.rescore:
+        from .rescore import check_rescoring
+
+        check_rescoring(args.rescore, settings)
     result = scan(
         args.molecule, bond=args.bond, name=args.name, charge=args.charge,
-        unpaired_electrons=args.unpaired_electrons, record=args.record, settings=_settings(args),
+        unpaired_electrons=args.unpaired_electrons, record=args.record, settings=settings,
     )
     out_dir = args.out or Path("results") / result.name
     summary = write_results(result, out_dir)

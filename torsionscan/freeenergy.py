@@ -69,9 +69,10 @@ def finite_difference_hessian(gradient_of, coords_bohr, step_bohr=FD_STEP_BOHR, 
     return 0.5 * (hessian + hessian.T) if symmetrise else hessian
 
 
-def analyse(engine, masses_amu, coords_bohr, dihedral_atoms, temperatures_k, freeze_torsion=False):
-    """Vibrations of one structure; freeze_torsion projects the dihedral out (a constrained point)."""
-    hessian = finite_difference_hessian(lambda c: engine.energy_and_gradient(c)[1], coords_bohr)
+def analyse(gradient_of, masses_amu, coords_bohr, dihedral_atoms, temperatures_k, freeze_torsion=False):
+    """Vibrations of one structure (gradient_of(coords) -> Hartree/Bohr); freeze_torsion projects the
+    dihedral out (a constrained point)."""
+    hessian = finite_difference_hessian(gradient_of, coords_bohr)
     torsion = [geometry.dihedral_gradient(np.asarray(coords_bohr), *dihedral_atoms).ravel()]
     frequencies, _ = harmonic_frequencies(hessian, masses_amu, coords_bohr, torsion if freeze_torsion else None)
     imaginary = int(np.sum(frequencies < 0))
@@ -95,13 +96,13 @@ def _with_vibrations(records, analysed):
     )
 
 
-def _analyse_all(records, engine, masses, atoms, temperatures, symmetric):
+def _analyse_all(records, gradient_of, masses, atoms, temperatures, symmetric):
     """Vibrations of each record; a mirror-image record (symmetric profile) reuses its partner's."""
     done, results = {}, []
     for record in records:
         key = round(abs(record.angle_deg), 1) if symmetric else round(record.angle_deg, 1)
         if key not in done:
-            done[key] = analyse(engine, masses, record.coords_bohr, atoms, temperatures)
+            done[key] = analyse(gradient_of, masses, record.coords_bohr, atoms, temperatures)
         results.append(done[key])
     return results
 
@@ -134,11 +135,11 @@ def readiness(minima, planar, temperatures_k):
 def add_free_energies(bond_scan, relaxer, masses_amu, settings, planar_scis_start=None):
     """The bond scan with vibrations at its minima and maxima, RRHO populations and, when
     planar_scis_start (coords, hessian) is given (dienes), the planar s-cis record and readiness."""
-    engine, atoms, temperatures = relaxer.engine, bond_scan.dihedral_atoms, settings.temperatures_k
-    minima = _with_vibrations(
-        bond_scan.minima, _analyse_all(bond_scan.minima, engine, masses_amu, atoms, temperatures, bond_scan.symmetric))
-    maxima = _with_vibrations(
-        bond_scan.maxima, _analyse_all(bond_scan.maxima, engine, masses_amu, atoms, temperatures, bond_scan.symmetric))
+    gradient_of, atoms, temperatures = relaxer.gradient, bond_scan.dihedral_atoms, settings.temperatures_k
+    minima = _with_vibrations(bond_scan.minima, _analyse_all(bond_scan.minima, gradient_of, masses_amu, atoms,
+                                                             temperatures, bond_scan.symmetric))
+    maxima = _with_vibrations(bond_scan.maxima, _analyse_all(bond_scan.maxima, gradient_of, masses_amu, atoms,
+                                                             temperatures, bond_scan.symmetric))
     update = dict(minima=minima, maxima=maxima, rrho_populations=rrho_populations(minima, temperatures))
     if planar_scis_start is not None and minima:
         from .records import StationaryRecord
@@ -147,7 +148,7 @@ def add_free_energies(bond_scan, relaxer, masses_amu, settings, planar_scis_star
         result = relaxer.relax(coords, settings.refine_convergence, hessian, atoms, 0.0)
         if not np.isfinite(result.energy):
             raise CalculationError("the planar s-cis structure could not be optimised")
-        vib = analyse(engine, masses_amu, result.x.reshape(-1, 3), atoms, temperatures, freeze_torsion=True)
+        vib = analyse(gradient_of, masses_amu, result.x.reshape(-1, 3), atoms, temperatures, freeze_torsion=True)
         planar = StationaryRecord(
             "planar s-cis", 0.0, 0.0, result.energy, "constrained at 0 deg, torsion frozen in the frequencies",
             result.converged, result.x.reshape(-1, 3), frequencies_cm1=vib.frequencies_cm1,

@@ -96,6 +96,15 @@ def check_level(level, symbols, charge=0, unpaired_electrons=0):
         _dispersion_energy(mol, level)
 
 
+def check_rescoring(level_text, settings):
+    """The Level of a re-scoring request, checked before any scan runs (InputError otherwise)."""
+    level = parse_level(level_text)
+    if settings.solvent:
+        raise InputError("DFT re-scoring is gas phase only: drop --solvent or --rescore")
+    check_level(level, ["C", "H"])
+    return level
+
+
 def _dispersion_energy(mol, level):
     """Dispersion correction in Hartree from the DFT-D3/DFT-D4 packages."""
     try:

@@ -110,6 +110,10 @@ class Relaxer:
         energy, gradient = self.engine.energy_and_gradient(x.reshape(-1, 3))
         return energy, gradient.ravel()
 
+    def gradient(self, coords_bohr):
+        """Gradient (N, 3) in Hartree/Bohr at coords (N, 3) in Bohr, within the deadline."""
+        return self._objective(np.ravel(coords_bohr))[1].reshape(-1, 3)
+
     @staticmethod
     def _rigid(x):
         return geometry.rigid_body_directions(x.reshape(-1, 3))
@@ -229,6 +233,7 @@ class _BondScanner:
         evaluations_before = self.relaxer.engine.evaluations
         try:
             result, point = self.relax_at(coords, hessian, angle, self.settings.point_convergence)
+            order, gap = self.relaxer.engine.conjugation(point.coords_bohr, self.atoms[1], self.atoms[2])
         except CalculationError as error:
             used = self.relaxer.engine.evaluations - evaluations_before
             self.visits.setdefault(index % self.steps_per_turn, []).append(
@@ -236,7 +241,6 @@ class _BondScanner:
             )
             log.warning("dihedral %s: point %.1f deg failed: %s", self.bond.label, angle, error)
             return coords, hessian
-        order, gap = self.relaxer.engine.conjugation(point.coords_bohr, self.atoms[1], self.atoms[2])
         point = replace(point, central_bond_order=order, homo_lumo_gap_ev=gap)
         self.visits.setdefault(index % self.steps_per_turn, []).append((point, result.hessian))
         return point.coords_bohr, result.hessian
@@ -465,7 +469,7 @@ def scan_bond(molecule, bond, relaxer, start, settings):
         scanned, started = relaxer.engine.evaluations, time.perf_counter()
         try:
             bond_scan = add_free_energies(bond_scan, relaxer, masses, settings, planar_start)
-        except CalculationError as error:
+        except (CalculationError, ValueError, np.linalg.LinAlgError) as error:
             log.warning("dihedral %s: frequencies failed (%s); free energies left out", bond.label, error)
         bond_scan = replace(bond_scan, frequency_gradient_evaluations=relaxer.engine.evaluations - scanned,
                             frequency_wall_time_s=time.perf_counter() - started)

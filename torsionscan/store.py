@@ -20,10 +20,11 @@ from pathlib import Path
 from . import __version__
 from .errors import InputError
 from .molecule import safe_name
+from .output.summary import POINT_KEYS
 
 DATABASE_NAME = "run.sqlite"
 COMPOUND_FOLDER = "compounds"  # inside a run folder: one sub-folder of files per compound
-STORE_SCHEMA = 2
+STORE_SCHEMA = 3
 
 _TABLES = """
 CREATE TABLE IF NOT EXISTS run (key TEXT PRIMARY KEY, value TEXT NOT NULL);
@@ -43,12 +44,10 @@ CREATE TABLE IF NOT EXISTS points (
     compound TEXT NOT NULL, bond TEXT NOT NULL, angle_deg REAL NOT NULL, measured_angle_deg REAL,
     energy_rel_kcal_mol REAL, energy_rel_kj_mol REAL, fit_kcal_mol REAL, converged INTEGER NOT NULL,
     mirrored INTEGER NOT NULL, gradient_evaluations INTEGER NOT NULL, central_bond_order REAL,
-    homo_lumo_gap_ev REAL, failure TEXT NOT NULL DEFAULT '',
+    homo_lumo_gap_ev REAL, failure TEXT NOT NULL DEFAULT '', energy_rescored_rel_kcal_mol REAL,
     PRIMARY KEY (compound, bond, angle_deg), FOREIGN KEY (compound, bond) REFERENCES bonds(compound, bond));
 """
-_POINT_COLUMNS = ("angle_deg", "measured_angle_deg", "energy_rel_kcal_mol", "energy_rel_kj_mol", "fit_kcal_mol",
-                  "gradient_evaluations", "converged", "mirrored", "central_bond_order", "homo_lumo_gap_ev",
-                  "failure")  # summary key order
+_POINT_COLUMNS = POINT_KEYS
 _BOOLEAN_POINT_COLUMNS = ("converged", "mirrored")
 
 
@@ -95,6 +94,11 @@ class RunStore:
         self._db.execute("PRAGMA foreign_keys=ON")
         with self._db:
             self._db.executescript(_TABLES)
+        stored = self.run_info().get("store_schema")
+        if stored is not None and stored != str(STORE_SCHEMA):
+            self.close()
+            raise InputError(f"{folder} holds a run in an older database format ({stored}, now {STORE_SCHEMA}); "
+                             "use a new --out folder")
 
     def close(self):
         self._db.close()
@@ -234,7 +238,8 @@ class RunStore:
                 self._db.executemany(
                     f"INSERT INTO points (compound, bond, {', '.join(_POINT_COLUMNS)}) "
                     f"VALUES (?, ?, {', '.join('?' * len(_POINT_COLUMNS))})",
-                    [(name, entry["bond"], *(p.get(column, "") for column in _POINT_COLUMNS)) for p in entry["points"]],
+                    [(name, entry["bond"], *(p.get(column, "" if column == "failure" else None)
+                                             for column in _POINT_COLUMNS)) for p in entry["points"]],
                 )
             self._db.execute(
                 "UPDATE compounds SET status = 'done', reason = '', summary_json = ?, session_id = ?, "
@@ -276,6 +281,8 @@ class RunStore:
                     point[column] = bool(point[column])
                 if not point["failure"]:
                     del point["failure"]
+                if point["energy_rescored_rel_kcal_mol"] is None and "rescored" not in entry:
+                    del point["energy_rescored_rel_kcal_mol"]
                 entry["points"].append(point)
             summary["bonds"].append(entry)
         return summary

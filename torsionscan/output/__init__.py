@@ -46,7 +46,8 @@ def bond_stem(label):
     return f"bond_{label}"
 
 
-def _figure_bytes(figure, suffix):
+def figure_bytes(figure, suffix):
+    """A figure saved to bytes in a format (png, svg)."""
     buffer = io.BytesIO()
     figure.savefig(buffer, format=suffix)
     return buffer.getvalue()
@@ -61,8 +62,8 @@ def render_figures(summary):
         profile = profile_figure(summary["name"], entry)
         populations = populations_figure(summary["name"], entry, temperature_range)
         rendered[entry["bond"]] = {
-            "profile.png": _figure_bytes(profile, "png"), "profile.svg": _figure_bytes(profile, "svg"),
-            "populations.png": _figure_bytes(populations, "png"),
+            "profile.png": figure_bytes(profile, "png"), "profile.svg": figure_bytes(profile, "svg"),
+            "populations.png": figure_bytes(populations, "png"),
         }
         plt.close(profile)
         plt.close(populations)

@@ -2,13 +2,12 @@
 an overview figure, every compound's folder and a self-contained HTML report."""
 
 import csv
-import io
 from pathlib import Path
 
 import matplotlib.pyplot as plt
 
 from ..store import RunStore, compound_folder, utc_now
-from . import atomic_write, bond_stem, write_compound_folder
+from . import atomic_write, bond_stem, figure_bytes, write_compound_folder
 from .html import html_report
 from .summary import METHOD_CAUTION
 
@@ -99,8 +98,9 @@ def _profile_row(entry):
 
 def compound_rows(record, summary):
     """Table rows of one compound (record: RunStore.compound; summary: None unless done)."""
-    base = {"name": record["name"], "smiles": record["smiles"], "compound_wall_time_s": record["wall_time_s"],
-            **record["extra"]}
+    # list columns first, so a column of the same name as one of ours cannot replace our value
+    base = {**record["extra"], "name": record["name"], "smiles": record["smiles"],
+            "compound_wall_time_s": record["wall_time_s"]}
     if summary is None:
         return [{**base, "status": record["status"], "reason": record["reason"]}]
     base["smiles"] = summary["smiles"]
@@ -135,13 +135,6 @@ def overview_figure(rows, temperature_k):
     return fig
 
 
-def _png(figure):
-    buffer = io.BytesIO()
-    figure.savefig(buffer, format="png")
-    plt.close(figure)
-    return buffer.getvalue()
-
-
 def write_run_report(out_dir, rebuild_folders=False):
     """Write the table, overview and HTML report of a run folder from its database.
 
@@ -163,7 +156,8 @@ def write_run_report(out_dir, rebuild_folders=False):
                 continue
             folder = compound_folder(out_dir, record["name"])
             images = [folder / f"{bond_stem(entry['bond'])}_profile.png" for entry in summary["bonds"]]
-            if rebuild_folders or not all(image.is_file() for image in images):
+            complete = (folder / "summary.json").is_file() and all(image.is_file() for image in images)
+            if rebuild_folders or not complete:
                 write_compound_folder(summary, store.structures(record["name"]), folder)
             plots[record["name"]] = [(entry["bond"], image.read_bytes()) for entry, image in zip(summary["bonds"], images)]
         counts = store.counts()
@@ -177,7 +171,9 @@ def write_run_report(out_dir, rebuild_folders=False):
             writer.writerows(rows)
 
     atomic_write(out_dir / TABLE_NAME, write_table)
-    overview = _png(overview_figure(rows, settings["temperatures_k"][0]))
+    figure = overview_figure(rows, settings["temperatures_k"][0])
+    overview = figure_bytes(figure, "png")
+    plt.close(figure)
     atomic_write(out_dir / OVERVIEW_NAME, lambda p: p.write_bytes(overview))
     run_info = {
         "run folder": str(out_dir), "compound list": info.get("list_file", ""),

@@ -229,12 +229,15 @@ def write_summary(summary, path):
     path.write_text(json.dumps(summary, indent=2, allow_nan=False) + "\n")
 
 
+# every field a profile point can carry, in the order of the summary (the run database uses it too)
+POINT_KEYS = ("angle_deg", "measured_angle_deg", "energy_rel_kcal_mol", "energy_rel_kj_mol", "fit_kcal_mol",
+              "gradient_evaluations", "converged", "mirrored", "central_bond_order", "homo_lumo_gap_ev",
+              "failure", "energy_rescored_rel_kcal_mol")
+
+
 def write_profile_table(bond_entry, path):
     """Write one dihedral's points (from its summary entry) as CSV."""
-    columns = ["angle_deg", "measured_angle_deg", "energy_rel_kcal_mol", "energy_rel_kj_mol", "fit_kcal_mol",
-               "central_bond_order", "homo_lumo_gap_ev", "energy_rescored_rel_kcal_mol", "converged",
-               "gradient_evaluations", "mirrored", "failure"]
     with path.open("w", newline="") as handle:
-        writer = csv.DictWriter(handle, fieldnames=columns, extrasaction="ignore")
+        writer = csv.DictWriter(handle, fieldnames=POINT_KEYS, extrasaction="ignore")
         writer.writeheader()
         writer.writerows(bond_entry["points"])
