@@ -118,3 +118,17 @@ def test_error_from_a_real_subprocess_has_no_traceback():
     )
     assert completed.returncode == 2
     assert "Traceback" not in completed.stderr and completed.stderr.count("\n") == 1
+
+
+def test_written_files_get_ordinary_permissions(acrolein_run):
+    out, _ = acrolein_run
+    # atomic writes go through a private temporary file; the result must still be readable by others
+    assert (out / "summary.json").stat().st_mode & 0o777 == 0o666 & ~_umask()
+
+
+def _umask():
+    import os
+
+    current = os.umask(0)
+    os.umask(current)
+    return current

@@ -18,6 +18,10 @@ from .structures import minima_sdf_text, scan_xyz_text
 from .summary import bond_label, summary_dict, write_profile_table, write_summary
 
 
+_UMASK = os.umask(0o022)
+os.umask(_UMASK)
+
+
 def atomic_write(path, write):
     """Run write(temporary_path) and move the result to `path`."""
     path = Path(path)
@@ -26,6 +30,7 @@ def atomic_write(path, write):
     temporary = Path(temporary)
     try:
         write(temporary)
+        os.chmod(temporary, 0o666 & ~_UMASK)  # the usual permissions of a new file, not mkstemp's 0600
         os.replace(temporary, path)
     finally:
         temporary.unlink(missing_ok=True)
