@@ -17,11 +17,12 @@ import sqlite3
 import time
 from concurrent.futures import ProcessPoolExecutor, as_completed
 from concurrent.futures.process import BrokenProcessPool
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 from pathlib import Path
 
 from . import THREAD_VARIABLES
 from .compounds import read_compound_list
+from .engines import resolve_backend
 from .errors import CalculationError, InputError, TimeLimitExceeded, TorsionScanError
 from .store import RunStore, compound_folder
 
@@ -136,11 +137,18 @@ def make_job(record, settings, options):
 
 def _local_outcomes(jobs, workers, threads_per_worker):
     """Outcomes as they finish, from a pool of spawned local processes."""
-    for variable in THREAD_VARIABLES:  # inherited by the spawned workers
-        os.environ[variable] = str(threads_per_worker)
+    saved = {variable: os.environ.get(variable) for variable in THREAD_VARIABLES}
+    os.environ.update({variable: str(threads_per_worker) for variable in THREAD_VARIABLES})  # for the workers
     pool = ProcessPoolExecutor(max_workers=workers, mp_context=multiprocessing.get_context("spawn"))
     try:
-        futures = [pool.submit(scan_compound, job) for job in jobs]
+        try:
+            futures = [pool.submit(scan_compound, job) for job in jobs]  # workers start during these calls
+        finally:
+            for variable, value in saved.items():
+                if value is None:
+                    os.environ.pop(variable, None)
+                else:
+                    os.environ[variable] = value
         for future in as_completed(futures):
             try:
                 yield future.result()
@@ -202,6 +210,10 @@ def run_batch(list_path, out_dir, settings, options=BatchOptions(), progress=Non
     started = time.perf_counter()
     settings.check()
     options.check()
+    # every worker, local or remote, must use the same implementation: fix it here, record it in the run
+    settings = replace(settings, engine=resolve_backend(settings.engine, settings.solvent, settings.solvation_model))
+    if options.cluster and (options.workers or options.threads_per_worker != 1):
+        log.warning("--workers and --threads-per-worker apply to local workers; the Dask workers keep their own")
     entries = read_compound_list(list_path)
     for entry in entries:
         if entry.note:

@@ -94,6 +94,26 @@ def solvation_model(solvent, model=None):
     return model
 
 
+def resolve_backend(backend="auto", solvent=None, solvation=None):
+    """The installed backend a run uses: "auto" becomes xtb-python if importable, else tblite
+    (tblite for ALPB). Raises InputError when the choice cannot work here."""
+    model = solvation_model(solvent, solvation)
+    found = available_backends()
+    if backend == "auto":
+        candidates = [b for b in (["tblite"] if model == "alpb" else found) if b in found]
+        if not candidates:
+            needed = "tblite (for ALPB solvation)" if model == "alpb" else "tblite (or xtb)"
+            raise InputError(f"no suitable GFN-xTB backend is installed; pip install {needed}")
+        return candidates[0]
+    if backend not in BACKENDS:
+        raise InputError(f"unknown engine {backend!r}; choose auto, {' or '.join(BACKENDS)}")
+    if backend not in found:
+        raise InputError(f"engine {backend} is not installed in this Python; choose another with --engine")
+    if backend == "xtb-python" and model == "alpb":
+        raise InputError("xtb-python offers only GBSA solvation: use --solvation-model gbsa or --engine tblite")
+    return backend
+
+
 def make_engine(numbers, *, charge=0, unpaired_electrons=0, method="GFN2-xTB", backend="auto", solvent=None,
                 solvation=None):
     """Create an engine for one molecule.
@@ -106,20 +126,7 @@ def make_engine(numbers, *, charge=0, unpaired_electrons=0, method="GFN2-xTB", b
         raise InputError(f"unknown method {method!r}; choose one of {', '.join(METHODS)}")
     check_electrons(numbers, charge, unpaired_electrons)
     model = solvation_model(solvent, solvation)
-    found = available_backends()
-    if backend == "auto":
-        candidates = ["tblite"] if model == "alpb" else found
-        candidates = [b for b in candidates if b in found]
-        if not candidates:
-            needed = "tblite (for ALPB solvation)" if model == "alpb" else "tblite (or xtb)"
-            raise InputError(f"no suitable GFN-xTB backend is installed; pip install {needed}")
-        backend = candidates[0]
-    if backend not in BACKENDS:
-        raise InputError(f"unknown engine {backend!r}; choose auto, {' or '.join(BACKENDS)}")
-    if backend not in found:
-        raise InputError(f"engine {backend} is not installed in this Python; choose another with --engine")
-    if backend == "xtb-python" and model == "alpb":
-        raise InputError("xtb-python offers only GBSA solvation: use --solvation-model gbsa or --engine tblite")
+    backend = resolve_backend(backend, solvent, solvation)
     if backend == "xtb-python":
         from .xtbpython import XtbPythonEngine as engine_class
     else:
