@@ -16,6 +16,7 @@ import numpy as np
 
 from . import geometry
 from .errors import CalculationError
+from .records import StationaryRecord
 from .rrho import conformer_populations, harmonic_frequencies, rrho_thermo
 from .units import HARTREE_KCAL_MOL, rt_kcal_mol
 
@@ -142,8 +143,6 @@ def add_free_energies(bond_scan, relaxer, masses_amu, settings, planar_scis_star
                                                              temperatures, bond_scan.symmetric))
     update = dict(minima=minima, maxima=maxima, rrho_populations=rrho_populations(minima, temperatures))
     if planar_scis_start is not None and minima:
-        from .records import StationaryRecord
-
         coords, hessian = planar_scis_start
         result = relaxer.relax(coords, settings.refine_convergence, hessian, atoms, 0.0)
         if not np.isfinite(result.energy):

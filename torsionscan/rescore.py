@@ -179,13 +179,13 @@ def disagreement(entry, rescored_analysis, rescored_energies):
     if largest > DISAGREEMENT_KCAL_MOL:
         reasons.append(f"the profiles differ by up to {largest:.2f} kcal/mol")
 
-    def lowest_region(minima, energy):
-        best = min(minima, key=energy, default=None)
-        return None if best is None else ("s-cis" if abs(best["angle_deg"] if isinstance(best, dict)
-                                                        else best.angle_deg) < 90 else "s-trans")
+    def region(angle_deg):
+        return None if angle_deg is None else ("s-cis" if abs(angle_deg) < 90 else "s-trans")
 
-    semi_region = lowest_region(entry["minima"], lambda m: m["energy_rel_kcal_mol"])
-    rescored_region = lowest_region(rescored_analysis.minima, lambda m: m.energy_hartree)
+    semi_lowest = min(entry["minima"], key=lambda m: m["energy_rel_kcal_mol"], default=None)
+    rescored_lowest = min(rescored_analysis.minima, key=lambda m: m.energy_hartree, default=None)
+    semi_region = region(semi_lowest and semi_lowest["angle_deg"])
+    rescored_region = region(rescored_lowest and rescored_lowest.angle_deg)
     if semi_region != rescored_region:
         reasons.append(f"the lowest conformer is {semi_region} with {entry['method']} but {rescored_region} re-scored")
     if len(entry["minima"]) != len(rescored_analysis.minima):
