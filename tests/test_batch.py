@@ -16,10 +16,12 @@ from html.parser import HTMLParser
 import pytest
 
 from torsionscan.batch import BatchOptions, run_batch
+from torsionscan.compounds import input_tag
 from torsionscan.scan import ScanSettings
 from torsionscan.store import DATABASE_NAME, RunStore
 
 FAST = ["--step", "30", "--conformers", "2"]
+UNNAMED = input_tag("C=CC(C)=O", "", "")  # the automatic name of the list's nameless row
 FAST_SETTINGS = ScanSettings(step_deg=30.0, conformers=2)
 
 MIXED_LIST = """name,smiles,charge,supplier_code
@@ -63,8 +65,8 @@ def test_each_bad_entry_fails_with_its_reason_and_the_others_finish(mixed_run):
     assert completed.returncode == 4, completed.stderr  # 4: finished, some compounds failed
     statuses = _statuses(out)
     done = {name for name, (status, *_) in statuses.items() if status == "done"}
-    assert done == {"acrolein", "butadiene", "line-11"}  # the nameless row got a name from its line
-    assert "(line 11): no name given; called it line-11" in completed.stderr
+    assert done == {"acrolein", "butadiene", UNNAMED}  # the nameless row got a name from its structure
+    assert f"(line 11): no name given; called it {UNNAMED}" in completed.stderr
     reasons = {name: reason for name, (status, reason, *_) in statuses.items() if status == "failed"}
     assert "no conjugated single bond" in reasons["ethylene"]
     assert "could not read 'C1=CC' as SMILES" in reasons["broken"]
@@ -124,10 +126,10 @@ def test_the_html_report_is_self_contained_and_shows_every_compound(mixed_run):
     page = (out / "report.html").read_text()
     reader = _ReportReader()
     reader.feed(page)
-    for name in ("acrolein", "butadiene", "line-11", "ethylene", "broken", "overcharged"):
+    for name in ("acrolein", "butadiene", UNNAMED, "ethylene", "broken", "overcharged"):
         assert name in reader.cells
     plotted = [alt for alts in reader.sections.values() for alt in alts]
-    for name in ("acrolein", "butadiene", "line-11"):
+    for name in ("acrolein", "butadiene", UNNAMED):
         assert any(name in alt and "2-3" in alt for alt in plotted), name
     assert all(image["src"].startswith("data:image/png;base64,") for image in reader.images)
     assert "http://" not in page and "https://" not in page

@@ -4,7 +4,7 @@ import pytest
 from rdkit import Chem
 from rdkit.Chem import AllChem
 
-from torsionscan.compounds import CompoundEntry, entry_input, read_compound_list
+from torsionscan.compounds import CompoundEntry, entry_input, input_tag, read_compound_list
 from torsionscan.errors import InputError
 
 
@@ -91,10 +91,15 @@ def test_duplicate_names_and_folder_clashes_get_unique_keys_and_problems(tmp_pat
 def test_empty_name_gets_an_automatic_name_and_a_note(tmp_path):
     path = _write(tmp_path, "list.csv", "smiles,name\nC=C,line-3\nC=CC=C,\nC=CC=O, \n")
     entries = read_compound_list(path)
-    assert [e.name for e in entries] == ["line-3", "line-3-2", "line-4"]
+    # named after a hash of the structure, so the name survives lines added or removed above it
+    diene, enal = input_tag("C=CC=C", "", "x"), input_tag("C=CC=O", "", "x")
+    assert [e.name for e in entries] == ["line-3", diene, enal]
+    assert diene.startswith("unnamed-") and len(diene) == len("unnamed-") + 8
     assert entries[0].note == ""
-    assert entries[1].note == "no name given; called it line-3-2"
-    assert entries[2].note == "no name given; called it line-4"
+    assert entries[1].note == f"no name given; called it {diene}"
+    assert entries[2].note == f"no name given; called it {enal}"
+    moved = read_compound_list(_write(tmp_path, "moved.csv", "smiles,name\n\n# new comment\nC=C,line-3\nC=CC=O,\n"))
+    assert moved[1].name == enal
     assert all(e.problem == "" for e in entries)
 
 
@@ -139,10 +144,10 @@ def test_smi_with_header_names_with_spaces_and_missing_names(tmp_path):
     entries = read_compound_list(path)
     assert [(e.name, e.where, e.smiles) for e in entries] == [
         ("1,3-butadiene (s-trans)", "line 3", "C=CC=C"),
-        ("line-5", "line 5", "C=CC=O"),
+        (input_tag("C=CC=O", "", ""), "line 5", "C=CC=O"),
         ("biphenyl", "line 6", "c1ccccc1-c1ccccc1"),
     ]
-    assert entries[1].note == "no name given; called it line-5"
+    assert entries[1].note == f"no name given; called it {input_tag('C=CC=O', '', '')}"
     assert all(e.extra == {} and e.problem == "" for e in entries)
 
 

@@ -90,3 +90,11 @@ def test_rescored_points_survive_the_store(tmp_path, butadiene_scan):
         store.add_compounds([_entry("butadiene", "C=CC=C")])
         store.record_done("butadiene", summary, {}, store.start_session("t"), 1.0)
         assert json.dumps(store.summary("butadiene")) == json.dumps(summary)
+
+
+def test_a_list_problem_fixed_without_changing_the_structure_becomes_pending(tmp_path):
+    with RunStore(tmp_path) as store:
+        store.add_compounds([_entry("a", "C=CC=C", problem="line 2 has 4 cells but the header has 2")])
+        assert store.compound("a")["status"] == "failed"
+        store.add_compounds([_entry("a", "C=CC=C")])
+        assert (store.compound("a")["status"], store.compound("a")["reason"]) == ("pending", "")

@@ -10,6 +10,7 @@ text files (the header is line 1), record numbers for SDF.
 """
 
 import csv
+import hashlib
 import io
 import re
 from dataclasses import dataclass, field
@@ -365,8 +366,16 @@ def _parse_integer(text, column, row, problems):
     return int(text.split(".")[0])
 
 
+def input_tag(smiles, molblock, fallback):
+    """The automatic name of an unnamed compound: "unnamed-" and 8 hex digits of a hash of its
+    structure (stable when lines are added or removed elsewhere in the list, so a rerun resumes it);
+    fallback (e.g. "line-7") when there is no structure."""
+    text = molblock or smiles
+    return f"unnamed-{hashlib.sha256(text.encode()).hexdigest()[:8]}" if text else fallback
+
+
 def _auto_names(tag):
-    """line-7, line-7-2, line-7-3, ..."""
+    """tag, tag-2, tag-3, ..."""
     yield tag
     for k in count(2):
         yield f"{tag}-{k}"
@@ -398,7 +407,7 @@ def _finish(rows):
             unpaired = 0
         name = row.name.strip()
         if not name:
-            name = _first_free(_auto_names(row.tag), names, folders)
+            name = _first_free(_auto_names(input_tag(row.smiles, row.molblock, row.tag)), names, folders)
             note = f"no name given; called it {name}"
         else:
             folder = safe_name(name)

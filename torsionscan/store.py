@@ -166,11 +166,13 @@ class RunStore:
 
         A known compound keeps its status. Its input may only change while it is not done: a done
         compound whose SMILES, structure, bond, charge or spin changed raises InputError. Entries
-        with a problem are stored as failed with that problem as the reason.
+        with a problem are stored as failed with that problem as the reason; a row whose problem
+        was fixed in the list becomes pending again.
         """
         from .compounds import entry_input
 
-        known = {row["name"]: row for row in self._db.execute("SELECT name, status, input_json FROM compounds")}
+        known = {row["name"]: row for row in
+                 self._db.execute("SELECT name, status, reason, attempts, input_json FROM compounds")}
         position = 1 + max((r[0] for r in self._db.execute("SELECT position FROM compounds")), default=0)
         with self._db:
             for entry in entries:
@@ -179,6 +181,10 @@ class RunStore:
                 row = known.get(entry.name)
                 if row is not None:
                     if json.loads(row["input_json"])["input"] == identity:
+                        if row["status"] == "failed" and row["attempts"] == 0 and row["reason"] != entry.problem:
+                            # a problem of the list row itself (never computed): follow the list as it is now
+                            self._db.execute("UPDATE compounds SET status = ?, reason = ? WHERE name = ?",
+                                             ("failed" if entry.problem else "pending", entry.problem, entry.name))
                         continue
                     if row["status"] == "done":
                         raise InputError(
