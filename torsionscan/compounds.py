@@ -25,7 +25,9 @@ from .molecule import safe_name
 _FORMATS = {
     ".csv": "csv", ".tsv": "tsv", ".smi": "smi", ".smiles": "smi", ".sdf": "sdf", ".sd": "sdf",
 }
-_KNOWN_COLUMNS = ("smiles", "name", "bond", "charge", "unpaired_electrons")
+# list column / SDF data field -> the _Row attribute it fills
+_KNOWN_FIELDS = {"smiles": "smiles", "name": "name", "bond": "bond", "charge": "charge",
+                 "unpaired_electrons": "unpaired"}
 _INTEGER = re.compile(r"[+-]?[0-9]+(?:\.0*)?")
 
 
@@ -216,16 +218,8 @@ def _read_table(text, delimiter, path):
             )
         for i, (key, title) in enumerate(zip(keys, header)):
             value = cells[i].strip() if i < len(cells) else ""
-            if key == "smiles":
-                row.smiles = value
-            elif key == "name":
-                row.name = value
-            elif key == "bond":
-                row.bond = value
-            elif key == "charge":
-                row.charge = value
-            elif key == "unpaired_electrons":
-                row.unpaired = value
+            if key in _KNOWN_FIELDS:
+                setattr(row, _KNOWN_FIELDS[key], value)
             elif used[i]:
                 row.extra[title or f"column {i + 1}"] = value
         if not row.smiles:
@@ -298,16 +292,9 @@ def _apply_fields(row, title, fields):
     for key, value in fields.items():
         value = value.strip()
         known = _normalise(key)
-        if known in _KNOWN_COLUMNS and known != "smiles" and known not in taken:
+        if known in _KNOWN_FIELDS and known != "smiles" and known not in taken:  # SMILES come from the record
             taken.add(known)
-            if known == "name":
-                row.name = value
-            elif known == "bond":
-                row.bond = value
-            elif known == "charge":
-                row.charge = value
-            else:
-                row.unpaired = value
+            setattr(row, _KNOWN_FIELDS[known], value)
         else:
             row.extra[key] = value
     if not row.name:
