@@ -16,7 +16,6 @@ compounds per hour, the speed-up, peak memory per worker and the Dask overhead.
 """
 
 import csv
-import math
 import statistics
 import sys
 import tempfile
@@ -54,8 +53,7 @@ def torsion_fit_seconds(result):
     began = time.perf_counter()
     entries = summary_dict(result)["bonds"]
     for bond, entry in zip(result.bonds, entries):
-        frames = [p.coords_bohr * BOHR_ANGSTROM for p in bond.points
-                  if not p.mirrored and math.isfinite(p.energy_hartree)]
+        frames = [p.coords_bohr * BOHR_ANGSTROM for p in bond.relaxed_points]
         fit_torsion(result.mol, entry, frames)
     return time.perf_counter() - began
 

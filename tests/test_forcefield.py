@@ -24,7 +24,7 @@ from torsionscan.units import BOHR_ANGSTROM
 
 
 def _frames(bond):
-    return [p.coords_bohr * BOHR_ANGSTROM for p in bond.points if not p.mirrored and math.isfinite(p.energy_hartree)]
+    return [p.coords_bohr * BOHR_ANGSTROM for p in bond.relaxed_points]
 
 
 @pytest.fixture(scope="module")
@@ -69,7 +69,7 @@ def test_synthetic_truth_through_the_full_residual_and_fit_path(butadiene_scan):
     frames = _frames(bond)
     truth = (TorsionTerm(1, 0.0, 0.4), TorsionTerm(2, 180.0, 2.5), TorsionTerm(3, 0.0, 0.3))
     _, without = Mmff94(result.mol, bond.dihedral_atoms[1:3]).energies(frames)
-    measured = [p.measured_angle_deg for p in bond.points if not p.mirrored and math.isfinite(p.energy_hartree)]
+    measured = [p.measured_angle_deg for p in bond.relaxed_points]
     pseudo = without + term_energy(truth, measured)
     pseudo -= pseudo.min()
     entry = copy.deepcopy(summary_dict(result)["bonds"][0])

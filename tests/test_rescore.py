@@ -1,7 +1,6 @@
 """DFT re-scoring with PySCF: the setup, butadiene and biphenyl against high-level values, and
 the method-disagreement indicator. Real single points; the slowest tests of the suite (minutes)."""
 
-import math
 
 import numpy as np
 import pytest
@@ -22,8 +21,7 @@ WATER = (["O", "H", "H"], np.array([[0.0, 0.0, 0.1173], [0.0, 0.7572, -0.4692], 
 def _rescored(smiles, step, threads=2):
     result = torsionscan.scan(smiles, settings=ScanSettings(step_deg=step, conformers=2, frequencies=False))
     summary = summary_dict(result)
-    frames = {entry["bond"]: [p.coords_bohr * BOHR_ANGSTROM for p in bond.points
-                              if not p.mirrored and math.isfinite(p.energy_hartree)]
+    frames = {entry["bond"]: [p.coords_bohr * BOHR_ANGSTROM for p in bond.relaxed_points]
               for entry, bond in zip(summary["bonds"], result.bonds)}
     return result, rescore_summary(summary, frames, list(result.symbols), STANDARD, threads)["bonds"][0]
 

@@ -112,16 +112,11 @@ def scan_compound(job):
 
 def _rescored(result, summary, job):
     """The summary re-scored at the job's DFT level (single points one after the other in this worker)."""
-    import math
-
     from .rescore import parse_level, rescore_summary
     from .units import BOHR_ANGSTROM
 
-    frames = {
-        entry["bond"]: [p.coords_bohr * BOHR_ANGSTROM for p in bond.points
-                        if not p.mirrored and math.isfinite(p.energy_hartree)]
-        for entry, bond in zip(summary["bonds"], result.bonds)
-    }
+    frames = {entry["bond"]: [p.coords_bohr * BOHR_ANGSTROM for p in bond.relaxed_points]
+              for entry, bond in zip(summary["bonds"], result.bonds)}
     try:
         return rescore_summary(summary, frames, list(result.symbols), parse_level(job["rescore"]), job["threads"])
     except TorsionScanError as error:  # keep the finished GFN-xTB scan; say why the DFT part is missing

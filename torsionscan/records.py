@@ -4,6 +4,7 @@ Energies are stored in Hartree (absolute) and converted to kcal/mol relative ene
 when the summary is written; angles are degrees; coordinates are Bohr.
 """
 
+import math
 from dataclasses import dataclass, field
 
 import numpy as np
@@ -89,6 +90,11 @@ class BondScan:
     readiness: tuple = ()  # freeenergy.Readiness per temperature (dienes, with frequencies)
     frequency_gradient_evaluations: int = 0  # spent on Hessians and the planar s-cis structure
     frequency_wall_time_s: float = 0.0
+
+    @property
+    def relaxed_points(self):
+        """Computed (not mirrored) points with an energy: the frames of the bond's XYZ file, in order."""
+        return tuple(p for p in self.points if not p.mirrored and math.isfinite(p.energy_hartree))
 
 
 @dataclass(frozen=True)

@@ -211,14 +211,13 @@ def rescore_entry(entry, frames_angstrom, symbols, level, *, charge=0, unpaired_
     relative = (energies - energies.min()) * HARTREE_KCAL_MOL
     pairs = points_with_frames(entry)
     angles = [p["angle_deg"] for p, _ in pairs]
-    analysis = analyse_profile(angles, relative[[n for _, n in pairs]], entry["symmetric_profile"], temperatures_k,
-                               window_deg)
+    rows = [n for _, n in pairs]
+    analysis = analyse_profile(angles, relative[rows], entry["symmetric_profile"], temperatures_k, window_deg)
     # the fit's lowest minimum may lie a little below the lowest grid point: it becomes the zero
     lowest = min([0.0, *[m.energy_hartree * HARTREE_KCAL_MOL for m in analysis.minima]])
     if lowest < 0:
         relative -= lowest
-        analysis = analyse_profile(angles, relative[[n for _, n in pairs]], entry["symmetric_profile"],
-                                   temperatures_k, window_deg)
+        analysis = analyse_profile(angles, relative[rows], entry["symmetric_profile"], temperatures_k, window_deg)
     values = {(p["angle_deg"], p["mirrored"]): round(float(relative[n]), 5) for p, n in pairs}
     entry = {**entry, "points": [
         {**p, "energy_rescored_rel_kcal_mol": values.get((p["angle_deg"], p["mirrored"]))} for p in entry["points"]
@@ -228,7 +227,7 @@ def rescore_entry(entry, frames_angstrom, symbols, level, *, charge=0, unpaired_
     entry.update(
         rescore_level=level.label,
         rescore_reference=level.reference,
-        method_disagreement=disagreement(entry, analysis, relative[[n for _, n in pairs]]),
+        method_disagreement=disagreement(entry, analysis, relative[rows]),
         rescored=rescored,
         rescore_wall_time_s=round(time.perf_counter() - started, 2),
     )

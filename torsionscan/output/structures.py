@@ -1,7 +1,6 @@
 """Relaxed structures: the scan as a multi-frame XYZ, the minima as SDF."""
 
 import io
-import math
 
 from rdkit import Chem
 from rdkit.Geometry import Point3D
@@ -19,9 +18,7 @@ def _xyz_frame(symbols, coords_bohr, comment):
 def scan_xyz_text(result, bond):
     """Computed (not mirrored) scan points as multi-frame XYZ text, angle and energy in each comment line."""
     frames = []
-    for p in bond.points:
-        if p.mirrored or not math.isfinite(p.energy_hartree):
-            continue
+    for p in bond.relaxed_points:
         rel = (p.energy_hartree - bond.reference_energy_hartree) * HARTREE_KCAL_MOL
         comment = (
             f"{result.name} dihedral={p.angle_deg:.2f} deg measured={p.measured_angle_deg:.4f} deg "
