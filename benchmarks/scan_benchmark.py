@@ -25,7 +25,6 @@ from pathlib import Path
 import torsionscan
 from torsionscan.batch import BatchOptions, run_batch
 from torsionscan.forcefield import fit_torsion
-from torsionscan.output.summary import summary_dict
 from torsionscan.store import RunStore
 from torsionscan.engines import make_engine
 from torsionscan.units import ANGSTROM_BOHR, BOHR_ANGSTROM
@@ -51,10 +50,8 @@ def time_per_gradient(smiles, repeats=30):
 def torsion_fit_seconds(result):
     """Wall time of the MMFF94 residual and term fit for every bond of a scan result."""
     began = time.perf_counter()
-    entries = summary_dict(result)["bonds"]
-    for bond, entry in zip(result.bonds, entries):
-        frames = [p.coords_bohr * BOHR_ANGSTROM for p in bond.relaxed_points]
-        fit_torsion(result.mol, entry, frames)
+    for bond in result.bonds:
+        fit_torsion(result, bond)
     return time.perf_counter() - began
 
 
@@ -99,7 +96,7 @@ def batch_benchmark(list_path, repeats=3):
 def rescore_benchmark(threads=2):
     """Seconds per DFT single point for each preset on butadiene and a 20-atom diene, and the whole
     re-scoring as a multiple of the GFN2-xTB scan (single points x computed frames / scan time)."""
-    from torsionscan.batch import usable_cores
+    from torsionscan.threads import usable_cores
     from torsionscan.rescore import PRESETS, single_point
 
     threads = min(threads, usable_cores())

@@ -3,7 +3,7 @@
 import pytest
 
 import torsionscan
-from torsionscan.scan import ScanSettings
+from torsionscan.settings import ScanSettings
 
 
 @pytest.fixture(scope="session")

@@ -1,4 +1,5 @@
-"""Batch runs end to end with real GFN2-xTB scans in real worker processes.
+"""Batch runs end to end with real GFN2-xTB scans in real worker processes (a worker builds its
+engine from the settings), and the worker/parent plumbing with model-engine results.
 
 Coarse grids (30 degrees, 2 start structures) keep them fast; the science is checked elsewhere.
 """
@@ -15,10 +16,19 @@ from html.parser import HTMLParser
 
 import pytest
 
-from torsionscan.batch import BatchOptions, run_batch
-from torsionscan.compounds import input_tag
-from torsionscan.scan import ScanSettings
+import torsionscan
+from torsionscan import driver, rescore
+from torsionscan.batch import BatchOptions, make_job, run_batch, scan_compound, store_outcome
+from torsionscan.compounds import CompoundEntry, input_tag
+from torsionscan.engines.model import ModelEngine
+from torsionscan.errors import CalculationError
+from torsionscan.molecule import find_conjugated_bonds, load_molecule
+from torsionscan.output import render_figures
+from torsionscan.profile import FourierSeries
+from torsionscan.settings import ScanSettings
 from torsionscan.store import DATABASE_NAME, RunStore
+
+xtb = pytest.mark.xtb
 
 FAST = ["--step", "30", "--conformers", "2"]
 UNNAMED = input_tag("C=CC(C)=O", "", "")  # the automatic name of the list's nameless row
@@ -60,6 +70,7 @@ def mixed_run(tmp_path_factory):
     return listing, out, completed
 
 
+@xtb
 def test_each_bad_entry_fails_with_its_reason_and_the_others_finish(mixed_run):
     _, out, completed = mixed_run
     assert completed.returncode == 4, completed.stderr  # 4: finished, some compounds failed
@@ -78,6 +89,7 @@ def test_each_bad_entry_fails_with_its_reason_and_the_others_finish(mixed_run):
         assert f"failed: {name}:" in completed.stdout
 
 
+@xtb
 def test_the_table_has_a_row_per_compound_and_bond_with_extra_columns(mixed_run):
     _, out, _ = mixed_run
     with (out / "scan_table.csv").open() as handle:
@@ -121,6 +133,7 @@ class _ReportReader(HTMLParser):
             self.cells.append(data.strip())
 
 
+@xtb
 def test_the_html_report_is_self_contained_and_shows_every_compound(mixed_run):
     _, out, _ = mixed_run
     page = (out / "report.html").read_text()
@@ -136,6 +149,7 @@ def test_the_html_report_is_self_contained_and_shows_every_compound(mixed_run):
     assert "Semi-empirical estimate" in page
 
 
+@xtb
 def test_rerun_resumes_and_changed_settings_are_refused(mixed_run):
     listing, out, _ = mixed_run
     before = _statuses(out)
@@ -150,6 +164,7 @@ def test_rerun_resumes_and_changed_settings_are_refused(mixed_run):
     assert len(errors) == 1 and "Traceback" not in refused.stderr
 
 
+@xtb
 def test_retry_failed_computes_the_failures_again(mixed_run, tmp_path):
     listing, out, _ = mixed_run
     retried = _batch(listing, "--out", out, "--workers", 2, "--timeout-per-compound", 4, "--retry-failed", *FAST)
@@ -160,6 +175,7 @@ def test_retry_failed_computes_the_failures_again(mixed_run, tmp_path):
     assert statuses["acrolein@line-10"][3] == 0
 
 
+@xtb
 def test_report_rebuilds_everything_from_the_database_alone(mixed_run):
     _, out, _ = mixed_run
     folder = out / "compounds" / "acrolein"
@@ -186,6 +202,7 @@ KILL_LIST = "name,smiles\n" + "\n".join(
 ) + "\n"
 
 
+@xtb
 def test_kill_9_mid_run_loses_and_recomputes_no_finished_compound(tmp_path):
     listing = tmp_path / "kill.csv"
     listing.write_text(KILL_LIST)
@@ -208,7 +225,7 @@ def test_kill_9_mid_run_loses_and_recomputes_no_finished_compound(tmp_path):
     process.wait(timeout=60)
     assert process.returncode == -signal.SIGKILL, "the batch ended before it could be killed"
     with RunStore(out) as store:
-        done_at_kill = {name: store.summary(name) for name in store.names("done")}
+        done_at_kill = {name: store.result(name).to_dict() for name in store.names("done")}
         assert 3 <= len(done_at_kill) < 12
 
     finished = subprocess.run(command, capture_output=True, text=True, timeout=600)
@@ -217,22 +234,23 @@ def test_kill_9_mid_run_loses_and_recomputes_no_finished_compound(tmp_path):
     statuses = _statuses(out)
     with RunStore(out) as store:
         assert store.counts() == {"pending": 0, "done": 12, "failed": 0}
-        for name, summary in done_at_kill.items():
+        for name, plain in done_at_kill.items():
             assert statuses[name][2:] == (1, 1)  # computed once, by the killed session
-            assert store.summary(name) == summary
+            assert store.result(name).to_dict() == plain
     assert {session for _, _, session, _ in statuses.values()} == {1, 2}
 
 
-def _stable(summary):
-    """A summary without the fields that depend on timing."""
-    text = json.dumps(summary)
-    data = json.loads(text)
+def _stable(result):
+    """A result's plain form without the fields that depend on timing."""
+    data = json.loads(json.dumps(result.to_dict()))
     for entry in data["bonds"]:
         entry.pop("wall_time_s")
         entry.pop("frequency_wall_time_s")
     return data
 
 
+@xtb
+@pytest.mark.cluster
 def test_a_dask_local_cluster_gives_exactly_the_local_results(tmp_path):
     distributed = pytest.importorskip("distributed")
     listing = tmp_path / "few.csv"
@@ -243,10 +261,11 @@ def test_a_dask_local_cluster_gives_exactly_the_local_results(tmp_path):
     assert local.counts == remote.counts == {"pending": 0, "done": 3, "failed": 0}
     with RunStore(tmp_path / "local") as a, RunStore(tmp_path / "dask") as b:
         for name in ("acrolein", "butadiene", "isoprene"):
-            assert _stable(a.summary(name)) == _stable(b.summary(name))
+            assert _stable(a.result(name)) == _stable(b.result(name))
         assert a.settings() == b.settings()
 
 
+@xtb
 def test_an_sdf_list_is_scanned_from_its_own_structures(tmp_path):
     from rdkit import Chem
     from rdkit.Chem import AllChem
@@ -263,5 +282,98 @@ def test_an_sdf_list_is_scanned_from_its_own_structures(tmp_path):
     outcome = run_batch(listing, tmp_path / "run", FAST_SETTINGS, BatchOptions(workers=1))
     assert outcome.counts == {"pending": 0, "done": 2, "failed": 0}
     with RunStore(tmp_path / "run") as store:
-        assert store.summary("enal-record")["smiles"] == "C=CC=O"
+        assert store.result("enal-record").smiles == "C=CC=O"
         assert store.compound("diene-record")["extra"] == {"batch_code": "B-diene-record"}
+
+
+# -- plumbing with model-engine results (milliseconds; no chemistry) -------------------------------
+def _model_scan(name="butadiene"):
+    molecule = load_molecule("C=CC=C")
+    (bond,) = find_conjugated_bonds(molecule)
+    engine = ModelEngine(molecule.mol, [(bond.atoms, FourierSeries(0.0, (1.0, 2.0, 0.3), (0.0, 0.0, 0.0)))])
+    return torsionscan.scan("C=CC=C", name=name, engine=engine, settings=ScanSettings(conformers=2, frequencies=False))
+
+
+@pytest.fixture(scope="module")
+def model_scan():
+    return _model_scan()
+
+
+def _job(tmp_path, rescore_level=None):
+    with RunStore(tmp_path / "jobs") as store:
+        store.add_compounds([CompoundEntry(name="butadiene", where="line 2", smiles="C=CC=C")])
+        return make_job(store.compound("butadiene"), FAST_SETTINGS,
+                        BatchOptions(rescore=rescore_level, timeout_per_compound_s=60.0))
+
+
+def test_the_worker_returns_plain_data_and_keeps_the_scan_when_rescoring_fails(tmp_path, model_scan, monkeypatch):
+    monkeypatch.setattr(driver, "scan", lambda *args, **kwargs: model_scan)
+
+    def refuse(result, level, threads=None):
+        raise CalculationError("SCF did not converge")
+
+    monkeypatch.setattr(rescore, "rescore_result", refuse)
+    outcome = scan_compound(_job(tmp_path, "b3lyp-d3bj/def2-svp"))
+    assert outcome["status"] == "done", outcome.get("reason")
+    json.dumps(outcome["result"], allow_nan=False)  # plain data, as sent between processes
+    assert outcome["result"] == model_scan.to_dict()
+    assert outcome["rescore_failure"] == "re-scoring at b3lyp-d3bj/def2-svp failed: SCF did not converge"
+    assert set(outcome["figures"]["2-3"]) == {"profile.png", "profile.svg", "populations.png"}
+    assert outcome["wall_time_s"] >= 0 and outcome["peak_memory_mb"] > 0 and ":" in outcome["worker"]
+
+
+def test_the_worker_rescores_with_the_jobs_level_and_threads(tmp_path, model_scan, monkeypatch):
+    monkeypatch.setattr(driver, "scan", lambda *args, **kwargs: model_scan)
+    seen = []
+
+    def fake(result, level, threads=None):  # stands in for the DFT single points: plumbing only
+        seen.append((level.label, threads))
+        return result
+
+    monkeypatch.setattr(rescore, "rescore_result", fake)
+    outcome = scan_compound(_job(tmp_path, "b3lyp-d3bj/def2-svp"))
+    assert (outcome["status"], outcome["rescore_failure"]) == ("done", "")
+    assert seen == [("B3LYP-D3(BJ)/def2-svp", 1)]
+
+
+def test_a_worker_failure_is_an_outcome_not_an_exception(tmp_path, monkeypatch):
+    def fail(*args, **kwargs):
+        raise CalculationError("SCF failed")
+
+    monkeypatch.setattr(driver, "scan", fail)
+    outcome = scan_compound(_job(tmp_path))
+    assert (outcome["status"], outcome["reason"]) == ("failed", "SCF failed")
+    assert "result" not in outcome
+
+
+def test_the_parent_stores_the_outcome_and_writes_the_folder_from_it(tmp_path, model_scan):
+    out = tmp_path / "run"
+    outcome = {"name": "butadiene", "worker": "here:1", "status": "done", "reason": "",
+               "result": json.loads(json.dumps(model_scan.to_dict())), "figures": render_figures(model_scan),
+               "rescore_failure": "re-scoring at X/y failed: no", "wall_time_s": 2.5, "peak_memory_mb": 10.0}
+    with RunStore(out) as store:
+        store.claim_settings(FAST_SETTINGS.as_dict(), "list.csv")
+        store.add_compounds([CompoundEntry(name="butadiene", where="line 2", smiles="C=CC=C")])
+        store_outcome(store, outcome, store.start_session("t"), out)
+        assert store.result("butadiene").to_dict() == model_scan.to_dict()
+        record = store.compound("butadiene")
+        assert (record["status"], record["worker"], record["wall_time_s"]) == ("done", "here:1", 2.5)
+        assert record["rescore_failure"] == "re-scoring at X/y failed: no"
+    folder = out / "compounds" / "butadiene"
+    assert json.loads((folder / "summary.json").read_text()) == model_scan.to_dict()
+    for name in ("bond_2-3_profile.png", "bond_2-3_profile.svg", "bond_2-3_populations.png", "bond_2-3_scan.xyz",
+                 "bond_2-3_minima.sdf", "bond_2-3_profile.csv"):
+        assert (folder / name).stat().st_size > 0
+    assert (folder / "bond_2-3_profile.png").read_bytes() == outcome["figures"]["2-3"]["profile.png"]
+
+
+def test_an_outcome_the_store_cannot_read_fails_that_compound_only(tmp_path, model_scan):
+    out = tmp_path / "run"
+    damaged = {**model_scan.to_dict(), "schema_version": 1}
+    outcome = {"name": "butadiene", "status": "done", "result": damaged, "figures": {}}
+    with RunStore(out) as store:
+        store.add_compounds([CompoundEntry(name="butadiene", where="line 2", smiles="C=CC=C")])
+        store_outcome(store, outcome, store.start_session("t"), out)
+        record = store.compound("butadiene")
+        assert record["status"] == "failed" and record["reason"].startswith("could not store the result: InputError")
+    assert not (out / "compounds" / "butadiene").exists()

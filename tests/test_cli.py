@@ -8,7 +8,18 @@ import sys
 import pytest
 from rdkit import Chem
 
+import torsionscan.driver
 from torsionscan.cli import main
+from torsionscan.engines.model import ModelEngine
+from torsionscan.molecule import find_conjugated_bonds, load_molecule
+from torsionscan.profile import FourierSeries
+from torsionscan.records import SCHEMA_VERSION, ScanResult
+
+xtb = pytest.mark.xtb
+
+
+def _summary(out):
+    return ScanResult.from_dict(json.loads((out / "summary.json").read_text()))
 
 
 @pytest.fixture(scope="module")
@@ -24,36 +35,35 @@ def acrolein_run(tmp_path_factory):
     return out, completed.stdout
 
 
+@xtb
 def test_terminal_summary_is_readable(acrolein_run):
     _, stdout = acrolein_run
     assert "acrolein" in stdout and "s-cis" in stdout and "barrier" in stdout
     assert "Semi-empirical estimate" in stdout
 
 
+@xtb
 def test_summary_json_has_the_documented_fields(acrolein_run):
     out, _ = acrolein_run
-    summary = json.loads((out / "summary.json").read_text())
-    assert summary["schema_version"] == 1
-    bond = summary["bonds"][0]
-    for key in ("dihedral_atoms", "method", "engine", "points", "minima", "barriers", "populations",
-                "fourier", "hysteresis", "gradient_evaluations_total"):
-        assert key in bond
-    assert bond["dihedral_atoms"] == [1, 2, 3, 4]
-    assert bond["method"] == "GFN2-xTB"
-    point = bond["points"][0]
-    for key in ("angle_deg", "measured_angle_deg", "energy_rel_kcal_mol", "gradient_evaluations", "converged"):
-        assert key in point
-    assert [p["temperature_k"] for p in bond["populations"]] == [253, 298.15, 353]
+    assert json.loads((out / "summary.json").read_text())["schema_version"] == SCHEMA_VERSION
+    result = _summary(out)
+    assert result.method == "GFN2-xTB" and result.caution.startswith("Semi-empirical estimate")
+    bond = result.bonds[0]
+    assert bond.dihedral_atoms == (0, 1, 2, 3) and bond.label == "2-3"
+    assert bond.points and bond.profile.minima and bond.profile.barriers and bond.gradient_evaluations_total > 0
+    populations = bond.profile.populations
+    assert [p.temperature_k for p in populations] == [253, 298.15, 353]
     # s-trans acrolein is the global minimum (experiment and high-level theory agree; common knowledge)
-    lowest = min(bond["minima"], key=lambda m: m["energy_rel_kcal_mol"])
-    assert abs(lowest["angle_deg"]) > 170
+    lowest = bond.profile.lowest_minimum()
+    assert abs(lowest.angle_deg) > 170
     # populations: s-cis grows with temperature when s-trans is lower
-    s_cis = [p["s_cis"] for p in bond["populations"]]
+    s_cis = [p.s_cis for p in populations]
     assert s_cis == sorted(s_cis)
-    for p in bond["populations"]:
-        assert p["s_cis"] + p["s_trans"] == pytest.approx(1.0, abs=1e-9)
+    for p in populations:
+        assert p.s_cis + p.s_trans == pytest.approx(1.0, abs=1e-9)
 
 
+@xtb
 def test_structures_table_and_plots_are_written(acrolein_run):
     out, _ = acrolein_run
     frames = (out / "bond_2-3_scan.xyz").read_text().splitlines()
@@ -69,13 +79,39 @@ def test_structures_table_and_plots_are_written(acrolein_run):
         assert (out / f"bond_2-3_profile.{suffix}").stat().st_size > 1000
 
 
+@xtb
 def test_fit_for_mmff94_adds_the_torsion_fit_and_its_files(acrolein_run):
     out, stdout = acrolein_run
-    fit = json.loads((out / "summary.json").read_text())["bonds"][0]["torsion_fit"]
-    assert fit["mm_model"] == "MMFF94 (RDKit)" and len(fit["terms"]) == 4
+    fit = _summary(out).bonds[0].torsion_fit
+    assert fit.mm_model == "MMFF94 (RDKit)" and len(fit.terms) == 4
     assert "torsion terms vs MMFF94" in stdout and "RMSE vs quantum profile" in stdout
     for name in ("torsion_fit.json", "torsion_terms.csv", "torsion_openmm.xml", "torsion_fit.png"):
         assert (out / f"bond_2-3_{name}").stat().st_size > 100
+
+
+def test_scan_command_with_the_model_engine(monkeypatch, tmp_path, capsys):
+    """The scan command's plumbing (scan, write, print, fit) on the analytic model engine."""
+    real_scan = torsionscan.driver.scan
+
+    def model_scan(source, **options):
+        molecule = load_molecule(source)
+        bond = find_conjugated_bonds(molecule)[0]
+        engine = ModelEngine(molecule.mol, [(bond.atoms, FourierSeries(0.0, (1.0, 2.0, 0.3), (0.0, 0.0, 0.0)))])
+        return real_scan(source, engine=engine, **options)
+
+    monkeypatch.setattr(torsionscan.driver, "scan", model_scan)
+    out = tmp_path / "diene"
+    assert main(["scan", "C=CC=C", "--step", "30", "--conformers", "2", "--no-frequencies",
+                 "--fit-for", "mmff94", "--out", str(out)]) == 0
+    stdout = capsys.readouterr().out
+    result = _summary(out)
+    assert result.method == "model potential"
+    assert f"— {result.method} via {result.engine}, gas phase" in stdout
+    assert result.caution in stdout and "Semi-empirical" not in stdout
+    assert "torsion terms vs MMFF94" in stdout and result.bonds[0].torsion_fit is not None
+    for ending in ("profile.csv", "scan.xyz", "minima.sdf", "profile.png", "profile.svg", "populations.png",
+                   "torsion_fit.json"):
+        assert (out / f"bond_2-3_{ending}").is_file()
 
 
 def test_bonds_command_lists_one_based_bonds(capsys):
@@ -120,6 +156,7 @@ def test_error_from_a_real_subprocess_has_no_traceback():
     assert "Traceback" not in completed.stderr and completed.stderr.count("\n") == 1
 
 
+@xtb
 def test_written_files_get_ordinary_permissions(acrolein_run):
     out, _ = acrolein_run
     # atomic writes go through a private temporary file; the result must still be readable by others

@@ -8,6 +8,8 @@ from torsionscan.errors import InputError
 from torsionscan.molecule import load_molecule, starting_structures
 from torsionscan.units import ANGSTROM_BOHR
 
+pytestmark = pytest.mark.xtb
+
 BOTH = pytest.mark.skipif(
     set(available_backends()) != {"xtb-python", "tblite"}, reason="needs both xtb-python and tblite"
 )

@@ -10,10 +10,12 @@ from torsionscan.engines import make_engine
 from torsionscan.freeenergy import finite_difference_hessian
 from torsionscan.molecule import load_molecule, starting_structures
 from torsionscan.optimize import Convergence
-from torsionscan.output.summary import summary_dict
 from torsionscan.rrho import harmonic_frequencies
-from torsionscan.scan import Relaxer, ScanSettings
-from torsionscan.units import ANGSTROM_BOHR, HARTREE_KCAL_MOL, rt_kcal_mol
+from torsionscan.relax import Relaxer
+from torsionscan.settings import ScanSettings
+from torsionscan.units import ANGSTROM_BOHR, rt_kcal_mol
+
+pytestmark = pytest.mark.xtb
 
 TIGHT = Convergence(max_gradient=2e-6, rms_gradient=1e-6, max_evaluations=300)
 
@@ -56,41 +58,38 @@ def test_formaldehyde_frequencies_match_the_experimental_table():
 
 
 def test_butadiene_stationary_points_have_the_right_nature(butadiene_scan):
-    bond = butadiene_scan.bonds[0]
-    assert all(m.imaginary_count == 0 for m in bond.minima)
-    assert all(m.imaginary_count == 1 and m.imaginary_along_torsion for m in bond.maxima)
-    s_trans = next(m for m in bond.minima if abs(m.angle_deg) > 170)
+    profile = butadiene_scan.bonds[0].profile
+    assert all(m.imaginary_count == 0 for m in profile.minima)
+    assert all(m.imaginary_count == 1 and m.imaginary_along_torsion for m in profile.maxima)
+    s_trans = next(m for m in profile.minima if abs(m.angle_deg) > 170)
     # s-trans-1,3-butadiene torsional fundamental nu13 = 163 cm-1 (gas-phase infrared; from memory);
     # 30 cm-1 allows GFN2-xTB's ~1 kcal/mol torsion error on this shallow mode
     assert s_trans.frequencies_cm1[0] == pytest.approx(163.0, abs=30.0)
 
 
 def test_free_energy_populations_and_readiness_of_butadiene(butadiene_scan):
-    bond = butadiene_scan.bonds[0]
-    entry = summary_dict(butadiene_scan)["bonds"][0]
-    for p in entry["populations"]:
-        assert p["s_cis_rrho"] + p["s_trans_rrho"] == pytest.approx(1.0)
-        assert 0.0 < p["s_cis_rrho"] < 0.3  # s-trans dominates (common knowledge)
-    assert entry["minima"][0]["frequencies_cm1"] and "gibbs_correction_kcal_mol" in entry["minima"][0]
-    readiness = entry["cycloaddition_readiness"]
-    assert [r["temperature_k"] for r in readiness] == [p["temperature_k"] for p in entry["populations"]]
-    at_zero = next(m for m in bond.maxima if abs(m.angle_deg) < 1)
+    profile = butadiene_scan.bonds[0].profile
+    for p in profile.rrho_populations:
+        assert p.s_cis + p.s_trans == pytest.approx(1.0)
+        assert 0.0 < p.s_cis < 0.3  # s-trans dominates (common knowledge)
+    assert profile.minima[0].frequencies_cm1 and profile.minima[0].gibbs_corrections_kcal_mol
+    readiness = profile.readiness
+    assert [r.temperature_k for r in readiness] == [p.temperature_k for p in profile.populations]
+    at_zero = next(m for m in profile.maxima if abs(m.angle_deg) < 1)
     # the planar s-cis structure is the barrier top at 0 deg: the same electronic energy
-    assert readiness[0]["dE_to_planar_scis_kcal_mol"] == pytest.approx(
-        (at_zero.energy_hartree - bond.reference_energy_hartree) * HARTREE_KCAL_MOL, abs=0.01)
+    assert readiness[0].delta_e_kcal_mol == pytest.approx(profile.relative_kcal_mol(at_zero.energy_hartree), abs=0.01)
     for r in readiness:
-        rt = rt_kcal_mol(r["temperature_k"])
-        assert r["boltzmann_factor"] == pytest.approx(math.exp(-r["dG_to_planar_scis_kcal_mol"] / rt), rel=1e-4)
-    assert bond.planar_scis.imaginary_count == 0  # the torsion is frozen there
-    assert len(bond.planar_scis.frequencies_cm1) == 3 * 10 - 7
+        rt = rt_kcal_mol(r.temperature_k)
+        assert r.boltzmann_factor == pytest.approx(math.exp(-r.delta_g_kcal_mol / rt), rel=1e-4)
+    assert profile.planar_scis.imaginary_count == 0  # the torsion is frozen there
+    assert len(profile.planar_scis.frequencies_cm1) == 3 * 10 - 7
 
 
 def test_an_enone_gets_no_diene_readiness_and_frequencies_can_be_skipped():
     settings = ScanSettings(step_deg=30.0, conformers=2)
-    enone = summary_dict(torsionscan.scan("C=CC=O", settings=settings))["bonds"][0]
-    assert enone["cycloaddition_readiness"] == [] and enone["planar_scis"] is None
-    assert "s_cis_rrho" in enone["populations"][0]
-    quick = summary_dict(torsionscan.scan("C=CC=O", settings=ScanSettings(step_deg=30.0, conformers=2,
-                                                                          frequencies=False)))["bonds"][0]
-    assert "frequencies_cm1" not in quick["minima"][0] and "s_cis_rrho" not in quick["populations"][0]
-    assert quick["frequency_gradient_evaluations"] == 0
+    enone = torsionscan.scan("C=CC=O", settings=settings).bonds[0]
+    assert enone.profile.readiness == () and enone.profile.planar_scis is None
+    assert enone.profile.rrho_populations
+    quick = torsionscan.scan("C=CC=O", settings=ScanSettings(step_deg=30.0, conformers=2, frequencies=False)).bonds[0]
+    assert quick.profile.minima[0].frequencies_cm1 == () and quick.profile.rrho_populations == ()
+    assert quick.frequency_gradient_evaluations == 0

@@ -1,14 +1,30 @@
-"""The self-contained HTML report: structure, embedded plots, escaping, no external resources."""
+"""The self-contained HTML report: structure, embedded plots, escaping, no external resources;
+and the run's table rows, overview and report built from records (model-engine results: plumbing only)."""
 
 import base64
+import csv
+import dataclasses
 import io
+import json
+import math
 import re
 from html.parser import HTMLParser
 
+import matplotlib.pyplot as plt
 import pytest
 from matplotlib.figure import Figure
 
+import torsionscan
+from torsionscan.compounds import CompoundEntry
+from torsionscan.engines.model import MODEL_CAUTION, ModelEngine
+from torsionscan.molecule import find_conjugated_bonds, load_molecule
 from torsionscan.output.html import html_report
+from torsionscan.output.report import compound_rows, overview_figure, table_columns
+from torsionscan.profile import FourierSeries
+from torsionscan.records import MethodDisagreement, RescoredProfile
+from torsionscan.runfolder import write_run_report
+from torsionscan.settings import ScanSettings
+from torsionscan.store import RunStore
 
 VOID = {"area", "base", "br", "col", "embed", "hr", "img", "input", "link", "meta", "source", "track", "wbr"}
 COLUMNS = ["name", "bond", "status", "barrier_kcal_mol", "p_s_cis", "planar", "reason"]
@@ -289,3 +305,110 @@ def test_empty_run():
     parsed = parse(page)
     assert parsed.errors == [] and parsed.body_rows == [] and parsed.head == COLUMNS
     assert not any(tag == "section" for tag, _ in parsed.starts)
+
+
+# -- the run's table rows, overview and report from records ---------------------------------------
+MODEL_SETTINGS = ScanSettings(conformers=2, frequencies=False)
+
+
+@pytest.fixture(scope="module")
+def model_scan():
+    """Butadiene on the model potential: minima at +-90.72 deg, barriers 2.70 (180) and 5.30 (0) kcal/mol."""
+    molecule = load_molecule("C=CC=C")
+    (bond,) = find_conjugated_bonds(molecule)
+    engine = ModelEngine(molecule.mol, [(bond.atoms, FourierSeries(0.0, (1.0, 2.0, 0.3), (0.0, 0.0, 0.0)))])
+    return torsionscan.scan("C=CC=C", name="butadiene", engine=engine, settings=MODEL_SETTINGS)
+
+
+def _record(name, status="done", reason="", **extra):
+    return {"name": name, "smiles": "C=CC=C", "status": status, "reason": reason, "extra": extra,
+            "wall_time_s": 1.25, "rescore_failure": ""}
+
+
+def test_compound_rows_from_a_result(model_scan):
+    (row,) = compound_rows(_record("butadiene", supplier="S-1", bond="list value"), model_scan)
+    (bond,) = model_scan.bonds
+    assert (row["name"], row["bond"], row["status"], row["reason"]) == ("butadiene", "2-3", "done", "")
+    assert row["supplier"] == "S-1"  # list columns kept; ours win on a clash
+    assert row["dihedral_atoms"] == "-".join(str(a + 1) for a in bond.dihedral_atoms)
+    assert abs(row["global_min_deg"]) == pytest.approx(90.72, abs=0.01)
+    assert row["global_min_deg"] == round(bond.profile.lowest_minimum().angle_deg, 3)
+    assert row["scis_min_deg"] is None and row["scis_min_rel_kcal_mol"] is None  # both minima are beyond 90 deg
+    assert row["strans_min_rel_kcal_mol"] == pytest.approx(0.0, abs=1e-4)
+    # the two minima are both s-trans: no barrier into the other region
+    assert row["barrier_to_other_region_kcal_mol"] is None
+    assert row["rotation_max_kcal_mol"] == pytest.approx(5.30, abs=0.01)
+    p = bond.profile.populations[0]
+    assert row["s_cis_298.15K"] == p.s_cis and row["scis_window_298.15K"] == p.scis_window
+    assert row["s_cis_rrho_298.15K"] is None  # no frequencies
+    assert row["fit_target_met"] is True and row["hysteresis"] is False
+    assert row["compound_wall_time_s"] == 1.25
+    assert "rescore_level" not in row
+    assert set(row) - {"supplier"} <= set(table_columns([298.15], []))
+
+
+def test_rescored_columns_come_from_the_rescored_profile(model_scan):
+    (bond,) = model_scan.bonds
+    energies = tuple(-1.0 + 0.0 * n for n in range(len(bond.relaxed_points)))  # stand-ins: plumbing only
+    rescored = RescoredProfile("X/def2-svp", "", energies, bond.profile,
+                               MethodDisagreement(0.1, 0.23456, 1.0, "differ"), 0.5)
+    result = dataclasses.replace(model_scan, bonds=(dataclasses.replace(bond, rescored=rescored),))
+    (row,) = compound_rows({**_record("butadiene"), "rescore_failure": ""}, result)
+    assert row["rescore_level"] == "X/def2-svp"
+    assert row["rescored_global_min_deg"] == round(bond.profile.lowest_minimum().angle_deg, 3)
+    assert row["rescored_s_cis_298.15K"] == bond.profile.populations[0].s_cis
+    assert (row["method_disagreement_max_kcal_mol"], row["method_disagreement_warning"]) == (0.2346, "differ")
+
+
+def test_rows_of_failed_compounds_bonds_and_rescoring(model_scan):
+    (row,) = compound_rows(_record("x", status="failed", reason="SCF failed"), None)
+    assert (row["status"], row["reason"], row["compound_wall_time_s"]) == ("failed", "SCF failed", 1.25)
+    partial = dataclasses.replace(model_scan, failed_bonds=(("5-6", "only 3 scan points converged"),))
+    done, failed = compound_rows({**_record("butadiene"), "rescore_failure": "re-scoring at X/y failed: z"}, partial)
+    assert (done["status"], done["reason"]) == ("done", "re-scoring at X/y failed: z")
+    assert (failed["bond"], failed["status"], failed["reason"]) == ("5-6", "failed", "only 3 scan points converged")
+
+
+def test_overview_is_titled_with_the_method(model_scan):
+    rows = compound_rows(_record("butadiene"), model_scan)
+    figure = overview_figure(rows, 298.15, model_scan.method)
+    title = figure.axes[0].get_title()
+    plt.close(figure)
+    assert "model potential" in title and "GFN2" not in title
+
+
+def test_the_run_report_is_rebuilt_from_the_store(tmp_path, model_scan):
+    out = tmp_path / "run"
+    with RunStore(out) as store:
+        store.claim_settings(MODEL_SETTINGS.as_dict(), "list.csv")
+        store.add_compounds([CompoundEntry(name="butadiene", where="line 2", smiles="C=CC=C", extra={"code": "A"}),
+                             CompoundEntry(name=EVIL, where="line 3", smiles="C=C", extra={"code": "B"})])
+        session = store.start_session("t")
+        store.record_done("butadiene", model_scan, session, 1.0)
+        store.record_failed(EVIL, "no conjugated single bond <here>", session)
+    report, count = write_run_report(out)
+    assert count == 2
+    folder = out / "compounds" / "butadiene"
+    written = (folder / "summary.json").read_bytes()
+    assert json.loads(written) == model_scan.to_dict()
+    with (out / "scan_table.csv").open() as handle:
+        rows = list(csv.DictReader(handle))
+    assert [(r["name"], r["status"], r["code"]) for r in rows] == [("butadiene", "done", "A"), (EVIL, "failed", "B")]
+    assert math.isclose(float(rows[0]["rotation_max_kcal_mol"]), 5.30, abs_tol=0.01)
+    page = report.read_text()
+    parsed = parse(page)
+    assert parsed.errors == []
+    assert MODEL_CAUTION in "".join(parsed.texts)  # the caution of the results, not a fixed GFN text
+    assert "<script>alert" not in page and "no conjugated single bond &lt;here&gt;" in page
+    assert "http://" not in page and "https://" not in page
+    assert (out / "overview.png").stat().st_size > 0
+    # everything comes back from the database alone
+    for path in [report, out / "scan_table.csv", out / "overview.png", *folder.iterdir()]:
+        path.unlink()
+    folder.rmdir()
+    write_run_report(out, rebuild_folders=True)
+    assert (folder / "summary.json").read_bytes() == written
+    for name in ("bond_2-3_profile.png", "bond_2-3_scan.xyz", "bond_2-3_minima.sdf", "bond_2-3_profile.csv"):
+        assert (folder / name).stat().st_size > 0
+    assert report.is_file() and (out / "scan_table.csv").is_file()
+

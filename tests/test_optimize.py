@@ -5,7 +5,7 @@ import pytest
 
 from torsionscan import geometry
 from torsionscan.optimize import Convergence, minimize, restore_constraints
-from torsionscan.scan import DihedralConstraint
+from torsionscan.coordinate import DihedralConstraint
 
 
 class CircleConstraint:

@@ -14,28 +14,30 @@ import pytest
 
 from torsionscan.units import HARTREE_KCAL_MOL
 
+pytestmark = pytest.mark.xtb
+
 METHOD_ERROR_KCAL_MOL = 1.0
 
 
 def _rel(bond, record):
-    return (record.energy_hartree - bond.reference_energy_hartree) * HARTREE_KCAL_MOL
+    return (record.energy_hartree - bond.profile.reference_energy_hartree) * HARTREE_KCAL_MOL
 
 
 def _minimum_near(bond, angle_deg, within_deg):
-    near = [m for m in bond.minima if abs(abs(m.angle_deg) - angle_deg) <= within_deg]
-    assert near, f"no minimum within {within_deg} deg of +-{angle_deg} deg: {[m.angle_deg for m in bond.minima]}"
+    near = [m for m in bond.profile.minima if abs(abs(m.angle_deg) - angle_deg) <= within_deg]
+    assert near, f"no minimum within {within_deg} deg of +-{angle_deg} deg: {[m.angle_deg for m in bond.profile.minima]}"
     return min(near, key=lambda m: m.energy_hartree)
 
 
 def _maximum_near(bond, angle_deg, within_deg):
-    near = [m for m in bond.maxima if abs(abs(m.angle_deg) - angle_deg) <= within_deg]
-    assert near, f"no maximum within {within_deg} deg of +-{angle_deg} deg: {[m.angle_deg for m in bond.maxima]}"
+    near = [m for m in bond.profile.maxima if abs(abs(m.angle_deg) - angle_deg) <= within_deg]
+    assert near, f"no maximum within {within_deg} deg of +-{angle_deg} deg: {[m.angle_deg for m in bond.profile.maxima]}"
     return max(near, key=lambda m: m.energy_hartree)
 
 
 def test_butadiene_s_trans_is_the_global_minimum(butadiene_scan):
     bond = butadiene_scan.bonds[0]
-    lowest = min(bond.minima, key=lambda m: m.energy_hartree)
+    lowest = min(bond.profile.minima, key=lambda m: m.energy_hartree)
     assert abs(lowest.angle_deg) == pytest.approx(180.0, abs=1.0)
 
 
@@ -47,7 +49,7 @@ def test_butadiene_has_a_gauche_minimum_not_a_planar_s_cis_one(butadiene_scan):
     bond = butadiene_scan.bonds[0]
     gauche = _minimum_near(bond, 45.0, 44.0)
     assert 5.0 < abs(gauche.angle_deg) < 89.0
-    at_experiment = bond.fit.series.value(34.0)
+    at_experiment = bond.profile.fit.series.value(34.0)
     assert at_experiment - _rel(bond, gauche) < METHOD_ERROR_KCAL_MOL
 
 
@@ -82,9 +84,9 @@ def test_biphenyl_twisted_minimum(biphenyl_scan):
     # et al., J. Mol. Struct. 1985; 45.8 deg best CCSD(T), Johansson and Olsen, JCTC 2008, 4, 1460.
     bond = biphenyl_scan.bonds[0]
     twisted = _minimum_near(bond, 44.4, 15.0)
-    assert bond.fit.series.value(44.4) - _rel(bond, twisted) < METHOD_ERROR_KCAL_MOL
+    assert bond.profile.fit.series.value(44.4) - _rel(bond, twisted) < METHOD_ERROR_KCAL_MOL
     # planar structures are not minima
-    assert all(min(abs(m.angle_deg), 180 - abs(m.angle_deg)) > 20 for m in bond.minima)
+    assert all(min(abs(m.angle_deg), 180 - abs(m.angle_deg)) > 20 for m in bond.profile.minima)
 
 
 @pytest.mark.parametrize("angle_deg, reference_kcal_mol", [(0.0, 1.90), (90.0, 2.10)])
@@ -100,7 +102,7 @@ def test_biphenyl_barriers(biphenyl_scan, angle_deg, reference_kcal_mol):
 
 def test_biphenyl_ring_flip_symmetry_gives_equal_populations(biphenyl_scan):
     # E(phi) = E(180 - phi) for biphenyl by symmetry (exact): s-cis and s-trans halves equal
-    populations = biphenyl_scan.bonds[0].populations[0]
+    populations = biphenyl_scan.bonds[0].profile.populations[0]
     assert populations.s_cis == pytest.approx(0.5, abs=0.02)
 
 
@@ -120,7 +122,7 @@ def test_profile_is_mirror_symmetric_and_fit_is_close(request, fixture):
     for angle, energy in energies.items():
         if -180 < angle < 180:
             assert energies[round(-angle, 6) + 0.0] == pytest.approx(energy, abs=1e-12)
-    assert bond.fit.rmse_kcal_mol < 0.1
+    assert bond.profile.fit.rmse_kcal_mol < 0.1
 
 
 def test_scan_efficiency_on_butadiene(butadiene_scan):
@@ -129,13 +131,13 @@ def test_scan_efficiency_on_butadiene(butadiene_scan):
     computed = [p.gradient_evaluations for p in bond.points if not p.mirrored]
     assert statistics.median(computed) <= 8
     assert butadiene_scan.start_gradient_evaluations + bond.gradient_evaluations_total <= 300
-    assert np.isfinite(bond.reference_energy_hartree)
+    assert np.isfinite(bond.profile.reference_energy_hartree)
 
 
 def test_chiral_molecule_gets_the_full_circle_from_both_directions():
     # with a stereocentre E(phi) = E(-phi) no longer holds: every angle is computed, none mirrored
     import torsionscan
-    from torsionscan.scan import ScanSettings
+    from torsionscan.settings import ScanSettings
 
     result = torsionscan.scan("C[C@H](F)C=CC=C", bond="5-6", settings=ScanSettings(step_deg=30, conformers=1))
     bond = result.bonds[0]

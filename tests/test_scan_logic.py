@@ -1,11 +1,18 @@
-"""Scan bookkeeping: sweep coverage, merging of flat stationary pairs, the time limit."""
+"""Scan bookkeeping: sweep coverage of the scan coordinate, merging of flat stationary pairs, the time limit."""
 
 import numpy as np
 import pytest
 
 from torsionscan.records import StationaryRecord
-from torsionscan.scan import merge_flat_extrema, sweep_plan
+from torsionscan.analysis import merge_flat_extrema
+from torsionscan.coordinate import ScanCoordinate
 from torsionscan.units import HARTREE_KCAL_MOL
+
+
+def sweep_plan(start, steps_per_turn, symmetric):
+    """The coordinate's visit plan for one dihedral as plain grid indices."""
+    coordinate = ScanCoordinate(((0, 1, 2, 3),), ((2, 3),), 360.0 / steps_per_turn, symmetric)
+    return [[index for (index,) in leg] for leg in coordinate.sweep_plan((start,))]
 
 
 def _arrivals(start, legs, modulo=None):
@@ -72,6 +79,7 @@ def test_flat_pair_away_from_a_plane_is_removed_as_a_pair():
     assert sorted((r.angle_deg, r.kind) for r in merged) == [(-120.0, "minimum"), (-20.0, "maximum")]
 
 
+@pytest.mark.xtb
 def test_a_time_limit_stops_a_real_scan_between_gradients():
     import time
 

@@ -5,8 +5,10 @@ import pytest
 from tblite.interface import Calculator
 
 import torsionscan
-from torsionscan.output.summary import summary_dict
-from torsionscan.scan import ScanSettings
+from torsionscan.engines import solvation_model
+from torsionscan.settings import ScanSettings
+
+pytestmark = pytest.mark.xtb
 
 COARSE = dict(step_deg=30.0, conformers=2)
 
@@ -19,7 +21,7 @@ def _dipole_debye(numbers, coords_bohr):
 
 
 def _minimum(bond, planar_angle):
-    return min((m for m in bond.minima if abs(abs(m.angle_deg) - planar_angle) < 30),
+    return min((m for m in bond.profile.minima if abs(abs(m.angle_deg) - planar_angle) < 30),
                key=lambda m: m.energy_hartree)
 
 
@@ -37,9 +39,9 @@ def test_water_shifts_the_enone_balance_towards_its_more_polar_conformer():
     # a dielectric stabilises the conformer with the larger dipole more (Onsager reaction field)
     assert (cis_minus_trans(water) < cis_minus_trans(gas)) == polar_cis
     assert abs(cis_minus_trans(water) - cis_minus_trans(gas)) > 0.05
-    summary = summary_dict(water)
-    assert summary["solvent"] == {"name": "water", "model": "ALPB"} == summary["bonds"][0]["solvent"]
-    assert summary_dict(gas)["solvent"] is None
+    assert (water.settings.solvent, solvation_model(water.settings.solvent, water.settings.solvation_model)) == (
+        "water", "alpb")
+    assert gas.settings.solvent is None
 
 
 def test_butadiene_conjugation_is_weakest_near_90_degrees(butadiene_scan):

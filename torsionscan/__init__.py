@@ -6,17 +6,16 @@ runs slower when OpenMP and BLAS threads compete for few cores, and parallel wor
 spent on separate processes. This must happen before numpy or an engine library is loaded.
 """
 
-import os
+from .threads import limit_threads
 
-THREAD_VARIABLES = ("OMP_NUM_THREADS", "OPENBLAS_NUM_THREADS", "MKL_NUM_THREADS")
-for _variable in THREAD_VARIABLES:
-    os.environ.setdefault(_variable, "1")
+limit_threads()
 
-__version__ = "0.1.0"
+from .version import __version__  # noqa: E402
 
 from .errors import CalculationError, InputError, TorsionScanError  # noqa: E402
 from .molecule import find_conjugated_bonds, load_molecule  # noqa: E402
-from .scan import ScanSettings, scan  # noqa: E402
+from .driver import scan  # noqa: E402
+from .settings import ScanSettings  # noqa: E402
 
 __all__ = [
     "scan", "ScanSettings", "load_molecule", "find_conjugated_bonds",

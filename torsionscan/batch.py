@@ -20,10 +20,11 @@ from concurrent.futures.process import BrokenProcessPool
 from dataclasses import dataclass, replace
 from pathlib import Path
 
-from . import THREAD_VARIABLES
+from .threads import THREAD_VARIABLES, usable_cores
 from .compounds import read_compound_list
 from .engines import resolve_backend
 from .errors import CalculationError, InputError, TimeLimitExceeded, TorsionScanError
+from .records import ScanResult
 from .store import RunStore, compound_folder
 
 log = logging.getLogger(__name__)
@@ -60,27 +61,21 @@ class BatchSummary:
     out_dir: Path
 
 
-def usable_cores():
-    """CPU cores this process may run on."""
-    try:
-        return len(os.sched_getaffinity(0))
-    except AttributeError:  # not on Linux
-        return os.cpu_count() or 1
-
-
 def scan_compound(job):
-    """Scan one compound (runs in a worker). job: dict from make_job. Returns a plain-data outcome.
+    """Scan one compound (runs in a worker). job: dict from make_job. Returns a plain-data outcome:
+    name, worker, status ("done"/"failed"), reason, result (ScanResult.to_dict()), figures
+    (output.render_figures), rescore_failure, wall_time_s (seconds), peak_memory_mb.
 
     Never raises for a problem with the compound: the outcome's status is then "failed" with the reason.
+    A failed re-scoring keeps the finished scan; its reason is the outcome's rescore_failure.
     """
     from rdkit import Chem
 
-    from .output import render_figures, structure_texts
-    from .output.summary import summary_dict
-    from .scan import scan
+    from .driver import scan
+    from .output import render_figures
 
     started = time.perf_counter()
-    outcome = {"name": job["name"], "worker": f"{socket.gethostname()}:{os.getpid()}"}
+    outcome = {"name": job["name"], "worker": f"{socket.gethostname()}:{os.getpid()}", "reason": ""}
     given = job["input"]
     try:
         source = given["smiles"]
@@ -92,13 +87,13 @@ def scan_compound(job):
             source, bond=given["bond"] or None, name=job["name"], charge=given["charge"],
             unpaired_electrons=given["unpaired_electrons"], settings=job["settings"], time_limit_s=job["time_limit_s"],
         )
-        summary = summary_dict(result)
+        rescore_failure = ""
         if job.get("rescore"):
-            summary = _rescored(result, summary, job)
-        json.dumps(summary, allow_nan=False)  # a value the store cannot hold fails this compound, here
+            result, rescore_failure = _rescored(result, job)
+        plain = result.to_dict()
+        json.dumps(plain, allow_nan=False)  # a value the store cannot hold fails this compound, here
         # drawing here keeps the single writing process free to take the next outcome
-        outcome.update(status="done", summary=summary, structures=structure_texts(result),
-                       figures=render_figures(summary))
+        outcome.update(status="done", result=plain, figures=render_figures(result), rescore_failure=rescore_failure)
     except TimeLimitExceeded as error:
         outcome.update(status="failed", reason=f"timeout: not finished within {job['time_limit_s']:g} s ({error})")
     except TorsionScanError as error:
@@ -110,17 +105,14 @@ def scan_compound(job):
     return outcome
 
 
-def _rescored(result, summary, job):
-    """The summary re-scored at the job's DFT level (single points one after the other in this worker)."""
-    from .rescore import parse_level, rescore_summary
-    from .units import BOHR_ANGSTROM
+def _rescored(result, job):
+    """(result re-scored at the job's DFT level, "") or, if that fails, (the scan unchanged, reason)."""
+    from .rescore import parse_level, rescore_result
 
-    frames = {entry["bond"]: [p.coords_bohr * BOHR_ANGSTROM for p in bond.relaxed_points]
-              for entry, bond in zip(summary["bonds"], result.bonds)}
     try:
-        return rescore_summary(summary, frames, list(result.symbols), parse_level(job["rescore"]), job["threads"])
-    except TorsionScanError as error:  # keep the finished GFN-xTB scan; say why the DFT part is missing
-        return {**summary, "rescore_failure": str(error)}
+        return rescore_result(result, parse_level(job["rescore"]), job["threads"]), ""
+    except TorsionScanError as error:  # keep the finished scan; say why the DFT part is missing
+        return result, f"re-scoring at {job['rescore']} failed: {error}"
 
 
 def make_job(record, settings, options):
@@ -177,8 +169,8 @@ def _cluster_outcomes(jobs, address):
 
 
 def store_outcome(store, outcome, session_id, out_dir):
-    """Commit one outcome to the store, then write the compound's folder."""
-    from .output import write_compound_folder
+    """Commit one outcome to the store, then write the compound's folder from the stored result."""
+    from .output import write_results
 
     common = dict(session_id=session_id, wall_time_s=outcome.get("wall_time_s"),
                   peak_memory_mb=outcome.get("peak_memory_mb"), worker=outcome.get("worker"))
@@ -186,13 +178,13 @@ def store_outcome(store, outcome, session_id, out_dir):
         store.record_failed(outcome["name"], outcome["reason"], **common)
         return
     try:
-        store.record_done(outcome["name"], outcome["summary"], outcome["structures"], **common)
-    except (sqlite3.Error, ValueError, TypeError) as error:  # this compound only: the run carries on
+        result = ScanResult.from_dict(outcome["result"])
+        store.record_done(outcome["name"], result, rescore_failure=outcome.get("rescore_failure", ""), **common)
+    except (sqlite3.Error, ValueError, TypeError, InputError) as error:  # this compound only: the run carries on
         outcome.update(status="failed", reason=f"could not store the result: {type(error).__name__}: {error}")
         store.record_failed(outcome["name"], outcome["reason"], **common)
         return
-    write_compound_folder(outcome["summary"], outcome["structures"], compound_folder(out_dir, outcome["name"]),
-                          outcome["figures"])
+    write_results(result, compound_folder(out_dir, outcome["name"]), outcome["figures"])
 
 
 def run_batch(list_path, out_dir, settings, options=BatchOptions(), progress=None, command="batch"):

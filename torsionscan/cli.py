@@ -3,6 +3,8 @@
 
 import argparse
 import logging
+import math
+import statistics
 import sys
 from pathlib import Path
 
@@ -66,23 +68,23 @@ def _add_fit_options(parser):
 
 
 def _fit_options(args):
-    from .forcefield import FitOptions
+    from .records import FitOptions
 
     return FitOptions(max_periodicity=args.periodicities, free_phases=args.free_phases,
                       weight_temperature_k=args.weight_temperature)
 
 
-def format_torsion_fit(label, record):
-    """Terminal lines of one bond's torsion-term fit."""
-    terms = ", ".join(f"n={t['periodicity']} {t['phase_deg']:g}° k={t['k_kcal_mol']:.3f}" for t in record["terms"])
-    return (f"bond {label} torsion terms vs {record['mm_model']} (kcal/mol): {terms}\n"
-            f"  RMSE vs quantum profile: {record['rmse_before_kcal_mol']:.3f} before "
-            f"({record['before_model']}), {record['rmse_after_kcal_mol']:.3f} after "
-            f"(max error {record['max_error_after_kcal_mol']:.3f})")
+def format_torsion_fit(label, fit):
+    """Terminal lines of one bond's torsion-term fit (a records.TorsionFit), kcal/mol."""
+    terms = ", ".join(f"n={t.periodicity} {t.phase_deg:g}° k={t.k_kcal_mol:.3f}" for t in fit.terms)
+    return (f"bond {label} torsion terms vs {fit.mm_model} (kcal/mol): {terms}\n"
+            f"  RMSE vs quantum profile: {fit.rmse_before_kcal_mol:.3f} before "
+            f"({fit.before_model}), {fit.rmse_after_kcal_mol:.3f} after "
+            f"(max error {fit.max_error_after_kcal_mol:.3f})")
 
 
 def _settings(args):
-    from .scan import ScanSettings
+    from .settings import ScanSettings
 
     return ScanSettings(
         step_deg=args.step, conformers=args.conformers, seed=args.seed, method=args.method,
@@ -92,145 +94,186 @@ def _settings(args):
     )
 
 
-def format_summary(summary, out_dir):
-    """Readable terminal report of a scan summary (output.summary_dict)."""
-    solvent = summary["solvent"]
-    medium = f"in {solvent['name']} ({solvent['model']})" if solvent else "gas phase"
-    lines = [f"{summary['name']}  {summary['smiles']}  — {summary['method']} via {summary['engine']}, {medium}"]
-    for entry in summary["bonds"]:
-        atoms = "-".join(str(a) for a in entry["dihedral_atoms"])
-        kind = "conjugated" if entry["conjugated"] else "chosen"
-        lines.append(f"dihedral {atoms} (bond {entry['bond']}, {kind}; 0° = s-cis, 180° = s-trans)")
-        minima = "   ".join(f"{m['angle_deg']:7.1f}° {m['energy_rel_kcal_mol']:6.2f}" for m in entry["minima"])
-        lines.append(f"  minima (kcal/mol):   {minima}")
-        shown = set()
-        for b in entry["barriers"]:
-            # a symmetric profile repeats every barrier as its mirror image: show each once
-            key = tuple(round(abs(b[k]), 1) for k in ("from_minimum_deg", "over_maximum_deg", "to_minimum_deg"))
-            if entry["symmetric_profile"] and key in shown:
-                continue
-            shown.add(key)
-            flag = "" if b["converged"] else "  [refinement not converged]"
-            lines.append(
-                f"  barrier {b['from_minimum_deg']:7.1f}° → {b['to_minimum_deg']:7.1f}° over "
-                f"{b['over_maximum_deg']:7.1f}°: {b['height_kcal_mol']:5.2f} kcal/mol ({b['height_kj_mol']:.1f} kJ/mol){flag}"
-            )
-        for p in entry["populations"]:
-            delta_g = p["delta_g_scis_minus_strans_kcal_mol"]
-            line = (
-                f"  {p['temperature_k']:g} K: s-cis {100 * p['s_cis']:.1f}%, s-trans {100 * p['s_trans']:.1f}%, "
-                f"|φ| ≤ {p['scis_window_deg']:g}° {100 * p['scis_window']:.2f}%, "
-                f"ΔG(s-cis − s-trans) " + (f"{delta_g:+.2f} kcal/mol" if delta_g is not None else "beyond numerical range")
-            )
-            if "s_cis_rrho" in p:
-                line += f"; from free energies of the minima: s-cis {100 * p['s_cis_rrho']:.1f}%"
-                line += "  [the two estimates disagree]" if p["disagree"] else ""
-            lines.append(line)
-        lines += _vibration_lines(entry)
-        fourier = entry["fourier"]
-        flagged = entry["hysteresis"]["points"]
-        hysteresis = ", ".join(f"{h['angle_deg']:g}° ({h['energy_difference_kcal_mol']:.2f})" for h in flagged) or "none"
-        computed = sum(1 for p in entry["points"] if not p["mirrored"])
-        unconverged = sum(1 for p in entry["points"] if not p["converged"] and not p["mirrored"])
+def _medium(settings):
+    """"gas phase" or "in <solvent> (<MODEL>)"."""
+    if not settings.solvent:
+        return "gas phase"
+    return f"in {settings.solvent} ({(settings.solvation_model or 'alpb').upper()})"
+
+
+def _minima_text(analysis):
+    """Angles (deg) and relative energies (kcal/mol) of a profile's minima on one line."""
+    return "   ".join(f"{m.angle_deg:7.1f}° {analysis.relative_kcal_mol(m.energy_hartree):6.2f}"
+                      for m in analysis.minima)
+
+
+def _barrier_lines(bond):
+    """One line per barrier; a symmetric profile repeats every barrier as its mirror image: shown once."""
+    from .units import KCAL_KJ
+
+    lines, shown = [], set()
+    for b in bond.profile.barriers:
+        key = tuple(round(abs(x), 1) for x in (b.from_minimum_deg, b.over_maximum_deg, b.to_minimum_deg))
+        if bond.symmetric and key in shown:
+            continue
+        shown.add(key)
+        flag = "" if b.converged else "  [refinement not converged]"
         lines.append(
-            f"  fit order {fourier['order']}, RMSE {fourier['rmse_kcal_mol']:.3f} kcal/mol; {computed} points"
-            f" ({unconverged} not converged), median {entry['gradient_evaluations_per_point_median']:g}"
-            f" gradients/point, {entry['gradient_evaluations_total']} in all"
-            + (f" (+{entry['frequency_gradient_evaluations']} for frequencies)" if entry["frequency_gradient_evaluations"]
-               else "") + f"; hysteresis: {hysteresis}"
+            f"  barrier {b.from_minimum_deg:7.1f}° → {b.to_minimum_deg:7.1f}° over "
+            f"{b.over_maximum_deg:7.1f}°: {b.height_kcal_mol:5.2f} kcal/mol ({b.height_kcal_mol * KCAL_KJ:.1f} kJ/mol)"
+            f"{flag}"
         )
-        if not fourier["target_met"]:
-            lines.append(
-                f"  warning: the Fourier fit misses its {fourier['target_rmse_kcal_mol']} kcal/mol target; "
-                "fitted minima and populations are approximate: try a smaller --step"
-            )
-    for entry in summary["bonds"]:
-        lines += _rescored_lines(entry)
-    for failed in summary["failed_bonds"]:
-        lines.append(f"bond {failed['bond']} FAILED: {failed['reason']}")
-    lines.append(f"files: {out_dir}/")
-    lines.append("Semi-empirical estimate (typical torsion error ~1 kcal/mol): confirm decisions at a higher level.")
-    return "\n".join(lines)
-
-
-def _rescored_lines(entry):
-    """Terminal lines of a bond's DFT re-scored profile and the disagreement between the methods."""
-    if "rescored" not in entry:
-        return []
-    rescored, verdict = entry["rescored"], entry["method_disagreement"]
-    minima = "   ".join(f"{m['angle_deg']:7.1f}° {m['energy_rel_kcal_mol']:6.2f}" for m in rescored["minima"])
-    lines = [f"bond {entry['bond']} re-scored at {entry['rescore_level']} (same geometries; extrema interpolated on the fit)",
-             f"  minima (kcal/mol):   {minima}"]
-    for p in rescored["populations"]:
-        lines.append(f"  {p['temperature_k']:g} K: s-cis {100 * p['s_cis']:.1f}%, |φ| ≤ {p['scis_window_deg']:g}° "
-                     f"{100 * p['scis_window']:.2f}%")
-    lines.append(f"  difference to {entry['method']}: RMS {verdict['rms_kcal_mol']:.2f}, max {verdict['max_kcal_mol']:.2f} kcal/mol"
-                 + (f"  WARNING: {verdict['warning']}" if verdict["warning"] else ""))
     return lines
 
 
-def _vibration_lines(entry):
+def _population_lines(analysis):
+    """Integrated populations per temperature with ΔG, and the RRHO estimate beside them when computed."""
+    from .output.summary import populations_disagree
+
+    lines = []
+    for n, p in enumerate(analysis.populations):
+        delta_g = p.delta_g_kcal_mol
+        line = (
+            f"  {p.temperature_k:g} K: s-cis {100 * p.s_cis:.1f}%, s-trans {100 * p.s_trans:.1f}%, "
+            f"|φ| ≤ {p.scis_window_deg:g}° {100 * p.scis_window:.2f}%, "
+            f"ΔG(s-cis − s-trans) " + (f"{delta_g:+.2f} kcal/mol" if math.isfinite(delta_g) else "beyond numerical range")
+        )
+        if n < len(analysis.rrho_populations):
+            rrho = analysis.rrho_populations[n]
+            line += f"; from free energies of the minima: s-cis {100 * rrho.s_cis:.1f}%"
+            line += "  [the two estimates disagree]" if populations_disagree(p, rrho) else ""
+        lines.append(line)
+    return lines
+
+
+def _fit_lines(bond):
+    """The fit, cost and hysteresis line of a bond, and the warning when the fit misses its target."""
+    from .profile import FIT_TARGET_KCAL_MOL
+
+    fit = bond.profile.fit
+    computed = [p for p in bond.points if not p.mirrored]
+    unconverged = sum(1 for p in computed if not p.converged)
+    median = statistics.median(p.gradient_evaluations for p in computed) if computed else 0
+    hysteresis = ", ".join(f"{h.angle_deg:g}° ({h.energy_difference_kcal_mol:.2f})" for h in bond.hysteresis) or "none"
+    lines = [
+        f"  fit order {fit.series.order}, RMSE {fit.rmse_kcal_mol:.3f} kcal/mol; {len(computed)} points"
+        f" ({unconverged} not converged), median {median:g}"
+        f" gradients/point, {bond.gradient_evaluations_total} in all"
+        + (f" (+{bond.frequency_gradient_evaluations} for frequencies)" if bond.frequency_gradient_evaluations else "")
+        + f"; hysteresis: {hysteresis}"
+    ]
+    if not fit.rmse_kcal_mol <= FIT_TARGET_KCAL_MOL:
+        lines.append(
+            f"  warning: the Fourier fit misses its {FIT_TARGET_KCAL_MOL} kcal/mol target; "
+            "fitted minima and populations are approximate: try a smaller --step"
+        )
+    return lines
+
+
+def format_summary(result, out_dir):
+    """Readable terminal report of a ScanResult whose files are in out_dir."""
+    lines = [f"{result.name}  {result.smiles}  — {result.method} via {result.engine}, {_medium(result.settings)}"]
+    for bond in result.bonds:
+        atoms = "-".join(str(a + 1) for a in bond.dihedral_atoms)
+        kind = "conjugated" if bond.conjugated else "chosen"
+        lines.append(f"dihedral {atoms} (bond {bond.label}, {kind}; 0° = s-cis, 180° = s-trans)")
+        lines.append(f"  minima (kcal/mol):   {_minima_text(bond.profile)}")
+        lines += _barrier_lines(bond)
+        lines += _population_lines(bond.profile)
+        lines += _vibration_lines(bond.profile)
+        lines += _fit_lines(bond)
+    for bond in result.bonds:
+        lines += _rescored_lines(result, bond)
+    for label, reason in result.failed_bonds:
+        lines.append(f"bond {label} FAILED: {reason}")
+    lines.append(f"files: {out_dir}/")
+    lines.append(result.caution)
+    return "\n".join(lines)
+
+
+def _rescored_lines(result, bond):
+    """Terminal lines of a bond's re-scored profile and the disagreement between the methods."""
+    rescored = bond.rescored
+    if rescored is None:
+        return []
+    analysis, verdict = rescored.analysis, rescored.disagreement
+    lines = [f"bond {bond.label} re-scored at {rescored.level} (same geometries; extrema interpolated on the fit)",
+             f"  minima (kcal/mol):   {_minima_text(analysis)}"]
+    for p in analysis.populations:
+        lines.append(f"  {p.temperature_k:g} K: s-cis {100 * p.s_cis:.1f}%, |φ| ≤ {p.scis_window_deg:g}° "
+                     f"{100 * p.scis_window:.2f}%")
+    lines.append(f"  difference to {result.method}: RMS {verdict.rms_kcal_mol:.2f}, max {verdict.max_kcal_mol:.2f} kcal/mol"
+                 + (f"  WARNING: {verdict.warning}" if verdict.warning else ""))
+    return lines
+
+
+def _vibration_lines(analysis):
     """Terminal lines on the nature of the stationary points and the planar s-cis cost of a diene."""
     lines = []
-    checked = [m for m in entry["minima"] + entry["maxima"] if "imaginary_count" in m]
+    checked = [m for m in analysis.minima + analysis.maxima if m.imaginary_count is not None]
     if checked:
-        wrong = [m for m in entry["minima"] if m["imaginary_count"]] + [
-            m for m in entry["maxima"] if m["imaginary_count"] != 1 or not m["imaginary_along_torsion"]]
+        wrong = [m for m in analysis.minima if m.imaginary_count] + [
+            m for m in analysis.maxima if m.imaginary_count != 1 or not m.imaginary_along_torsion]
         lines.append("  frequencies: " + ("minima have no imaginary mode; each barrier top has one, along the torsion"
                                           if not wrong else
-                                          "CHECK " + ", ".join(f"{m['angle_deg']:.1f}° ({m['imaginary_count']} imaginary)"
+                                          "CHECK " + ", ".join(f"{m.angle_deg:.1f}° ({m.imaginary_count} imaginary)"
                                                                for m in wrong)))
-    for r in entry["cycloaddition_readiness"]:
-        lines.append(f"  diene at {r['temperature_k']:g} K: planar s-cis costs ΔG {r['dG_to_planar_scis_kcal_mol']:.2f} "
-                     f"(ΔE {r['dE_to_planar_scis_kcal_mol']:.2f}) kcal/mol, Boltzmann factor {r['boltzmann_factor']:.3g}")
+    for r in analysis.readiness:
+        lines.append(f"  diene at {r.temperature_k:g} K: planar s-cis costs ΔG {r.delta_g_kcal_mol:.2f} "
+                     f"(ΔE {r.delta_e_kcal_mol:.2f}) kcal/mol, Boltzmann factor {r.boltzmann_factor:.3g}")
     return lines
 
 
 def run_scan(args):
+    from .driver import scan
     from .output import write_results
-    from .output.forcefield import fit_folder
-    from .scan import scan
 
     options = _fit_options(args)
     options.check()
     settings = _settings(args)
+    level = None
     if args.rescore:
         from .rescore import check_rescoring
 
-        check_rescoring(args.rescore, settings)
+        level = check_rescoring(args.rescore, settings)
     result = scan(
         args.molecule, bond=args.bond, name=args.name, charge=args.charge,
         unpaired_electrons=args.unpaired_electrons, record=args.record, settings=settings,
     )
-    out_dir = args.out or Path("results") / result.name
-    summary = write_results(result, out_dir)
-    if args.rescore:
-        from .output.rescoring import rescore_folder
+    if level is not None:
+        from .rescore import rescore_result
+        from .threads import usable_cores
 
-        summary = rescore_folder(out_dir, args.rescore, args.dft_threads)
-    print(format_summary(summary, out_dir))
+        result = rescore_result(result, level, args.dft_threads or usable_cores())
+    out_dir = args.out or Path("results") / result.name
+    write_results(result, out_dir)
+    print(format_summary(result, out_dir))
     if args.fit_for:
-        for label, record in fit_folder(out_dir, options=options).items():
-            print(format_torsion_fit(label, record))
+        from .workflows import fit_folder
+
+        for label, fit in fit_folder(out_dir, options=options).items():
+            print(format_torsion_fit(label, fit))
     return 3 if result.failed_bonds else 0
 
 
 def run_rescore(args):
-    from .output.rescoring import rescore_folder
+    from .workflows import rescore_folder
 
-    summary = rescore_folder(args.folder, args.level, args.threads)
-    for entry in summary["bonds"]:
-        print("\n".join(_rescored_lines(entry)))
+    result = rescore_folder(args.folder, args.level, args.threads)
+    for bond in result.bonds:
+        print("\n".join(_rescored_lines(result, bond)))
     print(f"files: {args.folder}/ (summary.json, bond_<j-k>_profile.csv and figures updated)")
     return 0
 
 
 def run_fit(args):
-    from .output.forcefield import fit_folder
+    from .workflows import fit_folder
 
-    records = fit_folder(args.folder, args.bond, _fit_options(args), args.mm_energies, args.quantum)
-    for label, record in records.items():
-        print(format_torsion_fit(label, record))
+    options = _fit_options(args)
+    options.check()
+    fits = fit_folder(args.folder, args.bond, options, args.mm_energies, args.quantum)
+    for label, fit in fits.items():
+        print(format_torsion_fit(label, fit))
     print(f"files: {args.folder}/bond_<j-k>_torsion_fit.json, _torsion_terms.csv, _torsion_openmm.xml, _torsion_fit.png")
     return 0
 
@@ -262,7 +305,7 @@ def run_batch_command(args):
     """Scan a compound list into a run folder, then write its table and report."""
     from .batch import run_batch
     from .output.progress import BatchProgress
-    from .output.report import write_run_report
+    from .runfolder import write_run_report
 
     out_dir = args.out or Path("results") / args.list.stem
     outcome = run_batch(args.list, out_dir, _settings(args), _batch_options(args), BatchProgress(),
@@ -274,12 +317,12 @@ def run_batch_command(args):
     for name, reason in outcome.failures:
         print(f"  failed: {name}: {reason}")
     print(f"table: {out_dir / 'scan_table.csv'}\nreport: {report}")
-    print("Semi-empirical estimates (typical torsion error ~1 kcal/mol): confirm decisions at a higher level.")
+    print(f"{args.method} estimates: read the caution in the report and confirm decisions at a higher level.")
     return PARTIAL_FAILURE if outcome.failures else 0
 
 
 def run_report(args):
-    from .output.report import write_run_report
+    from .runfolder import write_run_report
 
     report, rows = write_run_report(args.run, rebuild_folders=True)
     print(f"rebuilt {rows} table rows, compound folders and {report} from {args.run / 'run.sqlite'}")

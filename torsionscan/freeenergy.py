@@ -16,7 +16,9 @@ import numpy as np
 
 from . import geometry
 from .errors import CalculationError
-from .records import StationaryRecord
+from .coordinate import DihedralConstraint
+from .records import Readiness, RrhoPopulations, StationaryRecord
+from .thermo import is_s_cis
 from .rrho import conformer_populations, harmonic_frequencies, rrho_thermo
 from .units import HARTREE_KCAL_MOL, rt_kcal_mol
 
@@ -32,26 +34,6 @@ class Vibrations:
     imaginary_count: int
     imaginary_along_torsion: bool | None  # freezing the dihedral removes an imaginary mode; None if none
     gibbs_corrections_kcal_mol: tuple[float, ...]  # G - E_el per temperature (quasi-RRHO)
-
-
-@dataclass(frozen=True)
-class RrhoPopulations:
-    """Conformer populations from free energies of the located minima at one temperature."""
-
-    temperature_k: float
-    s_cis: float
-    s_trans: float
-    delta_g_kcal_mol: float  # -RT ln(s_cis / s_trans)
-
-
-@dataclass(frozen=True)
-class Readiness:
-    """Cost of reaching the planar s-cis geometry of a diene from its most stable conformer."""
-
-    temperature_k: float
-    delta_g_kcal_mol: float  # G(planar s-cis, torsion frozen) - G(most stable minimum)
-    delta_e_kcal_mol: float  # same with electronic energies (lowest-energy minimum)
-    boltzmann_factor: float  # exp(-delta_g / RT)
 
 
 def finite_difference_hessian(gradient_of, coords_bohr, step_bohr=FD_STEP_BOHR, symmetrise=True):
@@ -114,7 +96,7 @@ def rrho_populations(minima, temperatures_k):
     for n, t in enumerate(temperatures_k):
         free = [m.energy_hartree * HARTREE_KCAL_MOL + m.gibbs_corrections_kcal_mol[n] for m in minima]
         fractions = conformer_populations(free, t)
-        s_cis = float(sum(f for f, m in zip(fractions, minima) if abs(m.angle_deg) < 90.0))
+        s_cis = float(sum(f for f, m in zip(fractions, minima) if is_s_cis(m.angle_deg)))
         s_trans = 1.0 - s_cis
         delta_g = -rt_kcal_mol(t) * math.log(s_cis / s_trans) if 0 < s_cis < 1 else float("nan")
         populations.append(RrhoPopulations(t, s_cis, s_trans, delta_g))
@@ -133,18 +115,18 @@ def readiness(minima, planar, temperatures_k):
     return tuple(records)
 
 
-def add_free_energies(bond_scan, relaxer, masses_amu, settings, planar_scis_start=None):
-    """The bond scan with vibrations at its minima and maxima, RRHO populations and, when
+def add_free_energies(profile, dihedral_atoms, symmetric, relaxer, masses_amu, settings, planar_scis_start=None):
+    """The ProfileAnalysis with vibrations at its minima and maxima, RRHO populations and, when
     planar_scis_start (coords, hessian) is given (dienes), the planar s-cis record and readiness."""
-    gradient_of, atoms, temperatures = relaxer.gradient, bond_scan.dihedral_atoms, settings.temperatures_k
-    minima = _with_vibrations(bond_scan.minima, _analyse_all(bond_scan.minima, gradient_of, masses_amu, atoms,
-                                                             temperatures, bond_scan.symmetric))
-    maxima = _with_vibrations(bond_scan.maxima, _analyse_all(bond_scan.maxima, gradient_of, masses_amu, atoms,
-                                                             temperatures, bond_scan.symmetric))
+    gradient_of, atoms, temperatures = relaxer.gradient, dihedral_atoms, settings.temperatures_k
+    minima = _with_vibrations(profile.minima, _analyse_all(profile.minima, gradient_of, masses_amu, atoms,
+                                                           temperatures, symmetric))
+    maxima = _with_vibrations(profile.maxima, _analyse_all(profile.maxima, gradient_of, masses_amu, atoms,
+                                                           temperatures, symmetric))
     update = dict(minima=minima, maxima=maxima, rrho_populations=rrho_populations(minima, temperatures))
     if planar_scis_start is not None and minima:
         coords, hessian = planar_scis_start
-        result = relaxer.relax(coords, settings.refine_convergence, hessian, atoms, 0.0)
+        result = relaxer.relax(coords, settings.refine_convergence, hessian, [DihedralConstraint(atoms, 0.0)])
         if not np.isfinite(result.energy):
             raise CalculationError("the planar s-cis structure could not be optimised")
         vib = analyse(gradient_of, masses_amu, result.x.reshape(-1, 3), atoms, temperatures, freeze_torsion=True)
@@ -155,4 +137,4 @@ def add_free_energies(bond_scan, relaxer, masses_amu, settings, planar_scis_star
             gibbs_corrections_kcal_mol=vib.gibbs_corrections_kcal_mol,
         )
         update.update(planar_scis=planar, readiness=readiness(minima, planar, temperatures))
-    return replace(bond_scan, **update)
+    return replace(profile, **update)

@@ -1,20 +1,110 @@
-"""Frozen result records of a scan and their JSON form (the summary schema).
+"""Frozen result records of a scan, and their plain-data form (the summary schema).
 
-Energies are stored in Hartree (absolute) and converted to kcal/mol relative energies only
-when the summary is written; angles are degrees; coordinates are Bohr.
+Every record is a frozen dataclass. ``to_plain(record)`` turns any of them into JSON-ready data
+at full precision (non-finite floats as the strings "nan", "inf", "-inf", arrays as nested
+lists, the RDKit molecule as a MOL block) and ``from_plain(type, data)`` reads it back, driven by
+the field types alone, refusing unknown fields. ``ScanResult.to_dict``/``from_dict`` add the
+schema header. Energies are absolute Hartree; relative kcal/mol values are derived
+(``relative_kcal_mol``), and rounding happens only in writers. Angles in degrees, coordinates
+in Bohr, atom indices 0-based.
 """
 
+import dataclasses
 import math
+import types
+import typing
 from dataclasses import dataclass, field
 
 import numpy as np
+from rdkit import Chem
 
+from .errors import InputError
+from .mm import Quartet
 from .profile import FourierFit
-from .thermo import RegionPopulations
+from .settings import ScanSettings
+from .thermo import RegionPopulations, is_s_cis
+from .torsionfit import DEFAULT_MAX_PERIODICITY, MAX_PERIODICITY, TorsionTerm
+from .units import HARTREE_KCAL_MOL
 
-SCHEMA_VERSION = 1
+SCHEMA_VERSION = 2
+TIE_HARTREE = 1e-8  # energies closer than this count as equal when choosing the lowest minimum
 
 
+# -- plain-data form ------------------------------------------------------------------------------
+def to_plain(value):
+    """JSON-ready form of a record (or of any value a record field holds)."""
+    if dataclasses.is_dataclass(value) and not isinstance(value, type):
+        return {f.name: to_plain(getattr(value, f.name)) for f in dataclasses.fields(value)}
+    if isinstance(value, Chem.Mol):
+        return Chem.MolToMolBlock(value, includeStereo=True, kekulize=False, forceV3000=True)
+    if isinstance(value, np.ndarray):
+        return to_plain(value.tolist())
+    if isinstance(value, (list, tuple)):
+        return [to_plain(v) for v in value]
+    if isinstance(value, (bool, np.bool_)):
+        return bool(value)
+    if isinstance(value, (int, np.integer)):
+        return int(value)
+    if isinstance(value, (float, np.floating)):
+        value = float(value)
+        return value if math.isfinite(value) else str(value)
+    if value is None or isinstance(value, str):
+        return value
+    raise TypeError(f"no plain-data form for {type(value).__name__}")
+
+
+def _decode(kind, value, where):
+    origin, args = typing.get_origin(kind), typing.get_args(kind)
+    if origin in (typing.Union, types.UnionType):
+        if value is None and type(None) in args:
+            return None
+        (kind,) = [a for a in args if a is not type(None)]
+        return _decode(kind, value, where)
+    if value is None and kind not in (object, typing.Any):
+        raise InputError(f"summary field {where} is empty; the file is damaged: rerun the scan")
+    if dataclasses.is_dataclass(kind):
+        return from_plain(kind, value, where)
+    if origin is tuple:
+        if len(args) == 2 and args[1] is Ellipsis:
+            return tuple(_decode(args[0], v, f"{where}[{n}]") for n, v in enumerate(value))
+        if len(args) != len(value):
+            raise InputError(f"summary field {where} has {len(value)} entries, {len(args)} expected")
+        return tuple(_decode(a, v, f"{where}[{n}]") for n, (a, v) in enumerate(zip(args, value)))
+    if kind is np.ndarray:
+        return np.array(value, dtype=float)
+    if kind is Chem.Mol:
+        mol = Chem.MolFromMolBlock(value, removeHs=False, sanitize=True)
+        if mol is None:
+            raise InputError(f"summary field {where} is not a readable molecule; rerun the scan")
+        return mol
+    if kind is float:
+        return float(value)
+    if kind in (int, bool, str) and not isinstance(value, kind):
+        raise InputError(f"summary field {where} should be {kind.__name__}, found {value!r}")
+    return value
+
+
+def from_plain(kind, data, where=None):
+    """The record of dataclass `kind` from its plain-data form; InputError for unknown or missing fields."""
+    where = where or kind.__name__
+    if not isinstance(data, dict):
+        raise InputError(f"summary field {where} should be an object; the file is damaged: rerun the scan")
+    known = {f.name: f for f in dataclasses.fields(kind)}
+    unknown = sorted(set(data) - set(known))
+    if unknown:
+        raise InputError(f"summary field {where} has unknown entries {', '.join(unknown)}; "
+                         "it was written by another torsionscan version")
+    hints = typing.get_type_hints(kind)
+    values = {}
+    for name, spec in known.items():
+        if name in data:
+            values[name] = _decode(hints[name], data[name], f"{where}.{name}")
+        elif spec.default is dataclasses.MISSING and spec.default_factory is dataclasses.MISSING:
+            raise InputError(f"summary field {where}.{name} is missing; the file is damaged: rerun the scan")
+    return kind(**values)
+
+
+# -- records --------------------------------------------------------------------------------------
 @dataclass(frozen=True)
 class ScanPoint:
     """One relaxed geometry with the dihedral held at `angle_deg`."""
@@ -28,7 +118,7 @@ class ScanPoint:
     coords_bohr: np.ndarray = field(repr=False)
     mirrored: bool = False  # True: the mirror image of the point at -angle_deg, not computed
     failure: str = ""  # reason when the calculation itself failed (energy is NaN then)
-    central_bond_order: float = float("nan")  # Wiberg bond order of the scanned bond, as the engine reports it
+    central_bond_order: float = float("nan")  # Wiberg bond order of the scanned bond, if the engine reports it
     homo_lumo_gap_ev: float = float("nan")
 
 
@@ -42,15 +132,15 @@ class Hysteresis:
 
 @dataclass(frozen=True)
 class StationaryRecord:
-    """A minimum or barrier top of the profile, refined beyond the grid."""
+    """A minimum, barrier top or constrained planar structure of a profile."""
 
-    kind: str  # "minimum" or "maximum"
-    angle_deg: float  # measured on the refined geometry
+    kind: str  # "minimum", "maximum" or "planar s-cis"
+    angle_deg: float  # measured on the refined geometry (or the fit's angle when interpolated)
     fit_angle_deg: float  # where the Fourier fit puts it
     energy_hartree: float
     refinement: str  # how the energy was obtained
     converged: bool
-    coords_bohr: np.ndarray = field(repr=False)
+    coords_bohr: np.ndarray | None = field(default=None, repr=False)  # None: interpolated, no structure
     frequencies_cm1: tuple[float, ...] = ()  # harmonic, ascending, imaginary as negative; () if not computed
     imaginary_count: int | None = None
     imaginary_along_torsion: bool | None = None  # freezing the dihedral removes an imaginary mode
@@ -69,32 +159,179 @@ class Barrier:
 
 
 @dataclass(frozen=True)
-class BondScan:
-    """Everything measured for one dihedral."""
+class RrhoPopulations:
+    """Conformer populations from free energies of the located minima at one temperature."""
 
-    dihedral_atoms: tuple[int, int, int, int]  # 0-based
-    conjugated: bool
-    symmetric: bool
-    points: tuple[ScanPoint, ...]  # full circle, sorted by angle (mirrored points included)
+    temperature_k: float
+    s_cis: float
+    s_trans: float
+    delta_g_kcal_mol: float  # -RT ln(s_cis / s_trans)
+
+
+@dataclass(frozen=True)
+class Readiness:
+    """Cost of reaching the planar s-cis geometry of a diene from its most stable conformer."""
+
+    temperature_k: float
+    delta_g_kcal_mol: float  # G(planar s-cis, torsion frozen) - G(most stable minimum)
+    delta_e_kcal_mol: float  # same with electronic energies (lowest-energy minimum)
+    boltzmann_factor: float  # exp(-delta_g / RT)
+
+
+@dataclass(frozen=True)
+class ProfileAnalysis:
+    """What one energy profile says: its fit, stationary points, barriers and populations.
+
+    The scan, the re-scored profile and every later level are analysed into this one shape
+    (analysis.analyse_profile); the free-energy parts are filled where frequencies were computed.
+    """
+
     reference_energy_hartree: float  # zero of all relative energies: the lowest energy found
-    fit: FourierFit
+    fit: FourierFit  # relative energies, kcal/mol
     minima: tuple[StationaryRecord, ...]
     maxima: tuple[StationaryRecord, ...]
     barriers: tuple[Barrier, ...]
     populations: tuple[RegionPopulations, ...]
+    rrho_populations: tuple[RrhoPopulations, ...] = ()
+    planar_scis: StationaryRecord | None = None  # dienes: the planar s-cis structure (with frequencies)
+    readiness: tuple[Readiness, ...] = ()  # dienes, with frequencies
+
+    def relative_kcal_mol(self, energy_hartree):
+        """An absolute energy (Hartree) relative to this profile's zero, kcal/mol (NaN stays NaN)."""
+        return (energy_hartree - self.reference_energy_hartree) * HARTREE_KCAL_MOL
+
+    def lowest_minimum(self, region=None):
+        """The lowest minimum, or the lowest in region "s-cis"/"s-trans"; None if there is none."""
+        chosen = [m for m in self.minima if math.isfinite(m.energy_hartree)
+                  and (region is None or (region == "s-cis") == is_s_cis(m.angle_deg))]
+        if not chosen:
+            return None
+        lowest = min(m.energy_hartree for m in chosen)
+        # mirror images tie to rounding: take the first by angle, so the choice is reproducible
+        return min((m for m in chosen if m.energy_hartree - lowest < TIE_HARTREE), key=lambda m: m.angle_deg)
+
+    def barrier_to_other_region(self):
+        """Lowest barrier from the global minimum into the other region (kcal/mol), or None."""
+        best = self.lowest_minimum()
+        if best is None:
+            return None
+        heights = [b.height_kcal_mol for b in self.barriers
+                   if abs(b.from_minimum_deg - best.angle_deg) < 1e-3
+                   and is_s_cis(b.to_minimum_deg) != is_s_cis(best.angle_deg)]
+        return min(heights, default=None)
+
+
+@dataclass(frozen=True)
+class MethodDisagreement:
+    """How far a higher-level profile at the same geometries departs from the scan's."""
+
+    rms_kcal_mol: float  # after the best constant shift
+    max_kcal_mol: float
+    threshold_kcal_mol: float
+    warning: str | None  # None when the profiles agree within the threshold in every respect
+
+
+@dataclass(frozen=True)
+class RescoredProfile:
+    """Single points of a higher level at the scan's relaxed geometries, analysed like the scan."""
+
+    level: str
+    level_reference: str
+    energies_hartree: tuple[float, ...]  # one per relaxed point (BondScan.relaxed_points order)
+    analysis: ProfileAnalysis  # extrema interpolated on the fit (no structures)
+    disagreement: MethodDisagreement
+    wall_time_s: float
+
+
+@dataclass(frozen=True)
+class FitOptions:
+    """How torsion terms are fitted: periodicities 1..max_periodicity, phases 0/180 unless free_phases,
+    Boltzmann weights exp(-E_QM/RT) at weight_temperature_k if given."""
+
+    max_periodicity: int = DEFAULT_MAX_PERIODICITY
+    free_phases: bool = False
+    weight_temperature_k: float | None = None
+
+    def check(self):
+        """Raise InputError for options that cannot work."""
+        if not 1 <= self.max_periodicity <= MAX_PERIODICITY:
+            raise InputError(f"--periodicities must be 1 to {MAX_PERIODICITY}")
+        if self.weight_temperature_k is not None and not self.weight_temperature_k > 0:
+            raise InputError("--weight-temperature must be above 0 K")
+
+
+@dataclass(frozen=True)
+class TorsionFit:
+    """Dihedral terms sum_n k_n [1 + cos(n phi - phase_n)] completing an MM model for one bond.
+
+    All terms sit on the scan's dihedral (dihedral_atoms); the MM torsion terms of every quartet
+    about the bond were removed before fitting. Profile curves are kcal/mol, each MM curve
+    shifted by its best constant onto the quantum one, at profile_angles_deg.
+    """
+
+    mm_model: str
+    quantum_profile: str  # the method (or level) whose energies were fitted
+    dihedral_atoms: tuple[int, int, int, int]
+    mmff_types: tuple[int, ...] | None  # MMFF94 types of the dihedral atoms, None for user MM energies
+    terms: tuple[TorsionTerm, ...]
+    constant_kcal_mol: float
+    options: FitOptions
+    removed_torsions: tuple[Quartet, ...]  # the MMFF94 torsions taken out (empty for user energies)
+    before_model: str
+    rmse_before_kcal_mol: float
+    max_error_before_kcal_mol: float
+    rmse_without_torsion_kcal_mol: float
+    max_error_without_torsion_kcal_mol: float
+    rmse_after_kcal_mol: float
+    max_error_after_kcal_mol: float
+    profile_angles_deg: tuple[float, ...]
+    qm_kcal_mol: tuple[float, ...]
+    mm_without_torsion_kcal_mol: tuple[float, ...]
+    mm_with_fit_kcal_mol: tuple[float, ...]
+    mm_full_kcal_mol: tuple[float, ...] | None
+    fit_seconds: float
+
+
+@dataclass(frozen=True)
+class BondScan:
+    """Everything measured for one dihedral."""
+
+    dihedral_atoms: tuple[int, int, int, int]
+    conjugated: bool
+    symmetric: bool  # E(phi) = E(-phi): half the circle computed, the rest mirrored
+    points: tuple[ScanPoint, ...]  # full circle, sorted by angle (mirrored points included)
+    profile: ProfileAnalysis
     hysteresis: tuple[Hysteresis, ...]
+    hysteresis_threshold_kcal_mol: float
     gradient_evaluations_total: int
     wall_time_s: float
-    rrho_populations: tuple = ()  # freeenergy.RrhoPopulations per temperature (with frequencies)
-    planar_scis: StationaryRecord | None = None  # dienes: the planar s-cis structure (with frequencies)
-    readiness: tuple = ()  # freeenergy.Readiness per temperature (dienes, with frequencies)
     frequency_gradient_evaluations: int = 0  # spent on Hessians and the planar s-cis structure
     frequency_wall_time_s: float = 0.0
+    rescored: RescoredProfile | None = None
+    torsion_fit: TorsionFit | None = None
+
+    @property
+    def label(self):
+        """1-based label "j-k" of the central bond, as on the command line."""
+        return f"{self.dihedral_atoms[1] + 1}-{self.dihedral_atoms[2] + 1}"
 
     @property
     def relaxed_points(self):
         """Computed (not mirrored) points with an energy: the frames of the bond's XYZ file, in order."""
         return tuple(p for p in self.points if not p.mirrored and math.isfinite(p.energy_hartree))
+
+    def points_with_frames(self):
+        """(point, frame index into relaxed_points) for every point with an energy; a mirrored point
+        gets the frame of its mirror image."""
+        frames = {round(p.angle_deg % 360.0, 6): n for n, p in enumerate(self.relaxed_points)}
+        pairs = []
+        for p in self.points:
+            if not math.isfinite(p.energy_hartree):
+                continue
+            n = frames.get(round((-p.angle_deg if p.mirrored else p.angle_deg) % 360.0, 6))
+            if n is not None:
+                pairs.append((p, n))
+        return pairs
 
 
 @dataclass(frozen=True)
@@ -103,15 +340,40 @@ class ScanResult:
 
     name: str
     smiles: str
-    mol: object = field(repr=False)  # RDKit molecule with explicit hydrogens (atom order of all coordinates)
-    symbols: tuple[str, ...] = ()
-    charge: int = 0
-    unpaired_electrons: int = 0
-    method: str = ""
-    engine: str = ""
-    settings: dict = field(default_factory=dict)
-    start_energy_hartree: float = float("nan")
-    start_coords_bohr: np.ndarray = field(default=None, repr=False)
+    mol: Chem.Mol = field(repr=False)  # with explicit hydrogens, in the atom order of all coordinates
+    symbols: tuple[str, ...]
+    charge: int
+    unpaired_electrons: int
+    method: str  # the engine's method name, e.g. "GFN2-xTB"
+    engine: str  # the implementation that computed it
+    caution: str  # the engine's statement of what the numbers are worth
+    program: str  # "torsionscan <version>"
+    settings: ScanSettings
+    start_energy_hartree: float
+    start_coords_bohr: np.ndarray = field(repr=False)
     start_gradient_evaluations: int = 0
     bonds: tuple[BondScan, ...] = ()
     failed_bonds: tuple[tuple[str, str], ...] = ()  # (bond label, reason) of bonds whose scan failed
+
+    def bond(self, label):
+        """The BondScan of bond "j-k" (1-based); InputError naming the scanned bonds otherwise."""
+        for bond in self.bonds:
+            if bond.label == label:
+                return bond
+        scanned = ", ".join(b.label for b in self.bonds) or "none"
+        raise InputError(f"{self.name} has no scan of bond {label}; it holds {scanned}")
+
+    def to_dict(self):
+        """The summary: schema header plus every field at full precision (JSON-ready)."""
+        return {"schema_version": SCHEMA_VERSION, **to_plain(self)}
+
+    @classmethod
+    def from_dict(cls, data):
+        """Parse a summary written by to_dict; InputError for another schema version or a damaged one."""
+        if not isinstance(data, dict) or "schema_version" not in data:
+            raise InputError("not a torsionscan summary (no schema_version); give the summary.json of a scan")
+        version = data["schema_version"]
+        if version != SCHEMA_VERSION:
+            raise InputError(f"summary schema version {version} is not the one this torsionscan reads "
+                             f"({SCHEMA_VERSION}); rerun the scan with this version")
+        return from_plain(cls, {k: v for k, v in data.items() if k != "schema_version"})

@@ -1,29 +1,29 @@
 """Higher-level re-scoring of a scan: DFT single points (PySCF, on the CPU) at the relaxed
-GFN-xTB geometries, analysed exactly like the scan's own profile, and the disagreement between
-the two methods.
+geometries of the scan, analysed by the same analysis.analyse_profile as the scan's own profile,
+and the disagreement between the two methods.
 
-The re-scored profile keeps the semi-empirical geometries; its minima and maxima are located on
-its Fourier fit (interpolation between grid points, no re-optimisation) and labelled so.
-Energies in Hartree from PySCF, kcal/mol relative in the records; coordinates in Angstrom.
+The re-scored profile keeps the scan's geometries; its minima and maxima are located on its
+Fourier fit (interpolation between grid points, no re-optimisation) and labelled so. Energies
+absolute in Hartree in the records; coordinates Bohr in the records, Angstrom for PySCF.
 """
 
 import math
 import time
-from dataclasses import dataclass
+from dataclasses import dataclass, replace
 
-import numpy as np
-
-from .entries import computed_points, points_with_frames
+from .analysis import analyse_profile
 from .errors import CalculationError, InputError
-from .profile import fit_profile, stationary_points
-from .records import StationaryRecord
-from .thermo import region_populations
+from .records import MethodDisagreement, RescoredProfile
+from .thermo import is_s_cis
 from .torsionfit import profile_errors
-from .units import HARTREE_KCAL_MOL
+from .units import BOHR_ANGSTROM
 
 DISAGREEMENT_KCAL_MOL = 1.0  # largest point difference (after the best constant shift) that is not flagged
-FLAT_KCAL_MOL = 0.01  # extrema of the re-scored fit shallower than this are not reported
-INTERPOLATED = "interpolated on the re-scored Fourier fit (semi-empirical geometries, not re-optimised)"
+# a closed-shell molecule that exercises the basis and dispersion for H and C, checked before a scan
+# (when only the settings are known): methane, Angstrom
+TEST_MOLECULE = (("C", "H", "H", "H", "H"),
+                 ((0.0, 0.0, 0.0), (0.629, 0.629, 0.629), (-0.629, -0.629, 0.629),
+                  (-0.629, 0.629, -0.629), (0.629, -0.629, -0.629)))
 
 
 @dataclass(frozen=True)
@@ -83,25 +83,34 @@ def _pyscf():
     return dft, gto, lib
 
 
-def check_level(level, symbols, charge=0, unpaired_electrons=0):
-    """Raise InputError now (not after the scan) if PySCF, the functional, basis or dispersion cannot be used."""
+def check_level(level, symbols=None, charge=0, unpaired_electrons=0, *, coords_angstrom=None):
+    """Raise InputError now (not after hours of single points) if PySCF, the functional, the basis
+    (for these elements), the charge and spin or the dispersion cannot be used. symbols None: the
+    closed-shell TEST_MOLECULE; without coordinates the atoms are put on a line 1.5 Angstrom
+    apart (the check builds the basis and the dispersion, it runs no SCF)."""
     dft, gto, _ = _pyscf()
+    if symbols is None:
+        symbols, coords_angstrom, charge, unpaired_electrons = *TEST_MOLECULE, 0, 0
+    if coords_angstrom is None:
+        coords_angstrom = [(0.0, 0.0, 1.5 * n) for n in range(len(symbols))]
     try:
-        mol = gto.M(atom=[(s, (0.0, 0.0, 1.5 * n)) for n, s in enumerate(symbols)], basis=level.basis,
+        mol = gto.M(atom=[(s, tuple(map(float, c))) for s, c in zip(symbols, coords_angstrom)], basis=level.basis,
                     charge=charge, spin=unpaired_electrons, verbose=0)
         dft.libxc.parse_xc(level.functional)
     except (RuntimeError, KeyError, ValueError, NotImplementedError) as error:
-        raise InputError(f"level {level.label}: PySCF cannot use it ({error}); check the functional and basis names")
+        reason = " ".join(str(error).split())
+        raise InputError(f"level {level.label}: PySCF cannot use it ({reason}); check the functional and basis names")
     if level.dispersion:
         _dispersion_energy(mol, level)
 
 
 def check_rescoring(level_text, settings):
-    """The Level of a re-scoring request, checked before any scan runs (InputError otherwise)."""
+    """The Level of a re-scoring request, checked on a closed-shell test molecule before any scan
+    runs (InputError otherwise); rescore_result checks it again on the scanned molecule."""
     level = parse_level(level_text)
     if settings.solvent:
         raise InputError("DFT re-scoring is gas phase only: drop --solvent or --rescore")
-    check_level(level, ["C", "H"])
+    check_level(level)
     return level
 
 
@@ -123,7 +132,7 @@ def _dispersion_energy(mol, level):
 
 
 def single_point(symbols, coords_angstrom, level, charge=0, unpaired_electrons=0, threads=None):
-    """DFT energy (Hartree) of one geometry, with the dispersion correction when the level has one."""
+    """DFT energy (Hartree) of one geometry (Angstrom), with the dispersion correction when the level has one."""
     dft, gto, lib = _pyscf()
     if threads:
         lib.num_threads(threads)
@@ -141,110 +150,56 @@ def single_point(symbols, coords_angstrom, level, charge=0, unpaired_electrons=0
     return float(energy) + (_dispersion_energy(mol, level) if level.dispersion else 0.0)
 
 
-@dataclass(frozen=True)
-class ProfileAnalysis:
-    """Fit, stationary points, barriers and populations of a profile (the shape output.summary expects)."""
-
-    fit: object
-    minima: tuple
-    maxima: tuple
-    barriers: tuple
-    populations: tuple
-    rrho_populations: tuple = ()
+def _region(minimum):
+    return None if minimum is None else ("s-cis" if is_s_cis(minimum.angle_deg) else "s-trans")
 
 
-def analyse_profile(angles_deg, energies_kcal_mol, symmetric, temperatures_k, window_deg):
-    """Fit and analyse a profile known only at grid points; energies relative, kcal/mol (Hartree in records)."""
-    from .scan import barriers_between
-
-    fit = fit_profile(np.asarray(angles_deg), np.asarray(energies_kcal_mol), symmetric=symmetric)
-    extrema = stationary_points(fit.series, min_depth_kcal_mol=FLAT_KCAL_MOL)
-    records = [
-        StationaryRecord(s.kind, s.angle_deg, s.angle_deg, s.energy_kcal_mol / HARTREE_KCAL_MOL, INTERPOLATED,
-                         True, None)
-        for s in extrema
-    ]
-    minima = tuple(r for r in records if r.kind == "minimum")
-    maxima = tuple(r for r in records if r.kind == "maximum")
-    populations = tuple(region_populations(fit.series.value, t, window_deg) for t in temperatures_k)
-    return ProfileAnalysis(fit, minima, maxima, tuple(barriers_between(list(minima), list(maxima))), populations)
-
-
-def disagreement(entry, rescored_analysis, rescored_energies):
-    """The method_disagreement record: RMS/max difference of the two profiles and a warning or None."""
-    pairs = points_with_frames(entry)
-    semi = [p["energy_rel_kcal_mol"] for p, _ in pairs]
-    rms, largest = profile_errors(semi, rescored_energies)
+def disagreement(bond, analysis, energies_hartree, method):
+    """MethodDisagreement of a re-scored profile (analysis; energies_hartree per relaxed point)
+    against the bond's own profile computed with `method`, at the same geometries."""
+    pairs = bond.points_with_frames()
+    semi = [bond.profile.relative_kcal_mol(p.energy_hartree) for p, _ in pairs]
+    rescored = [analysis.relative_kcal_mol(energies_hartree[n]) for _, n in pairs]
+    rms, largest = profile_errors(semi, rescored)
     reasons = []
     if largest > DISAGREEMENT_KCAL_MOL:
         reasons.append(f"the profiles differ by up to {largest:.2f} kcal/mol")
-
-    def region(angle_deg):
-        return None if angle_deg is None else ("s-cis" if abs(angle_deg) < 90 else "s-trans")
-
-    semi_lowest = min(entry["minima"], key=lambda m: m["energy_rel_kcal_mol"], default=None)
-    rescored_lowest = min(rescored_analysis.minima, key=lambda m: m.energy_hartree, default=None)
-    semi_region = region(semi_lowest and semi_lowest["angle_deg"])
-    rescored_region = region(rescored_lowest and rescored_lowest.angle_deg)
+    semi_region, rescored_region = _region(bond.profile.lowest_minimum()), _region(analysis.lowest_minimum())
     if semi_region != rescored_region:
-        reasons.append(f"the lowest conformer is {semi_region} with {entry['method']} but {rescored_region} re-scored")
-    if len(entry["minima"]) != len(rescored_analysis.minima):
-        reasons.append(f"{len(entry['minima'])} minima with {entry['method']} but "
-                       f"{len(rescored_analysis.minima)} re-scored")
+        reasons.append(f"the lowest conformer is {semi_region} with {method} but {rescored_region} re-scored")
+    if len(bond.profile.minima) != len(analysis.minima):
+        reasons.append(f"{len(bond.profile.minima)} minima with {method} but {len(analysis.minima)} re-scored")
     warning = ("; ".join(reasons) + ": treat the semi-empirical numbers with caution") if reasons else None
-    return {"rms_kcal_mol": round(rms, 4), "max_kcal_mol": round(largest, 4), "warning": warning,
-            "threshold_kcal_mol": DISAGREEMENT_KCAL_MOL,
-            "note": "differences of the relative profiles at the same geometries after the best constant shift"}
+    return MethodDisagreement(rms, largest, DISAGREEMENT_KCAL_MOL, warning)
 
 
-def rescore_entry(entry, frames_angstrom, symbols, level, *, charge=0, unpaired_electrons=0, temperatures_k=(298.15,),
-                  window_deg=30.0, threads=None):
-    """A bond's summary entry with re-scored energies, rescored analysis and method_disagreement added."""
-    from .output.summary import profile_analysis_dict
-
+def rescore_bond(result, bond, level, threads=None):
+    """The RescoredProfile of one bond: single points at its relaxed points, analysed like the scan."""
     started = time.perf_counter()
-    if len(frames_angstrom) != len(computed_points(entry)):
-        raise InputError(f"bond {entry['bond']}: {len(frames_angstrom)} frames for {len(computed_points(entry))} "
-                         "scan points; rerun the scan")
-    energies = np.array([single_point(symbols, f, level, charge, unpaired_electrons, threads)
-                         for f in frames_angstrom])
-    relative = (energies - energies.min()) * HARTREE_KCAL_MOL
-    pairs = points_with_frames(entry)
-    angles = [p["angle_deg"] for p, _ in pairs]
-    rows = [n for _, n in pairs]
-    analysis = analyse_profile(angles, relative[rows], entry["symmetric_profile"], temperatures_k, window_deg)
-    # the fit's lowest minimum may lie a little below the lowest grid point: it becomes the zero
-    lowest = min([0.0, *[m.energy_hartree * HARTREE_KCAL_MOL for m in analysis.minima]])
-    if lowest < 0:
-        relative -= lowest
-        analysis = analyse_profile(angles, relative[rows], entry["symmetric_profile"], temperatures_k, window_deg)
-    values = {(p["angle_deg"], p["mirrored"]): round(float(relative[n]), 5) for p, n in pairs}
-    entry = {**entry, "points": [
-        {**p, "energy_rescored_rel_kcal_mol": values.get((p["angle_deg"], p["mirrored"]))} for p in entry["points"]
-    ]}
-    rescored = profile_analysis_dict(analysis, 0.0)
-    rescored["note"] = f"{level.label} single points at the {entry['method']} geometries; minima and maxima {INTERPOLATED}"
-    entry.update(
-        rescore_level=level.label,
-        rescore_reference=level.reference,
-        method_disagreement=disagreement(entry, analysis, relative[rows]),
-        rescored=rescored,
-        rescore_wall_time_s=round(time.perf_counter() - started, 2),
+    energies = tuple(
+        single_point(result.symbols, p.coords_bohr * BOHR_ANGSTROM, level, result.charge,
+                     result.unpaired_electrons, threads)
+        for p in bond.relaxed_points
     )
-    return entry
+    pairs = bond.points_with_frames()
+    analysis = analyse_profile([p.angle_deg for p, _ in pairs], [energies[n] for _, n in pairs], bond.symmetric,
+                               result.settings.temperatures_k, result.settings.scis_window_deg)
+    return RescoredProfile(level.label, level.reference, energies, analysis,
+                           disagreement(bond, analysis, energies, result.method), time.perf_counter() - started)
 
 
-def rescore_summary(summary, frames_by_bond, symbols, level, threads=None):
-    """A compound summary with every bond re-scored; frames_by_bond: {bond label: frames in Angstrom}."""
-    settings = summary["settings"]
-    if settings.get("solvent"):
-        raise InputError("DFT re-scoring is gas phase only: the scan used an implicit solvent; rescore a gas-phase scan")
-    temperatures = settings["temperatures_k"]
-    window = settings["scis_window_deg"]
-    bonds = [
-        rescore_entry(entry, frames_by_bond[entry["bond"]], symbols, level, charge=summary["charge"],
-                      unpaired_electrons=summary["unpaired_electrons"], temperatures_k=temperatures,
-                      window_deg=window, threads=threads)
-        for entry in summary["bonds"]
-    ]
-    return {**summary, "bonds": bonds}
+def rescore_result(result, level, threads=None):
+    """The ScanResult with every bond's `rescored` set; level: a Level or its text (parse_level).
+
+    Gas phase only (InputError for a scan in implicit solvent); the level is checked on the
+    scanned molecule's elements, charge and spin before the first single point.
+    """
+    if isinstance(level, str):
+        level = parse_level(level)
+    if result.settings.solvent:
+        raise InputError("DFT re-scoring is gas phase only: the scan used an implicit solvent; "
+                         "rescore a gas-phase scan")
+    check_level(level, result.symbols, result.charge, result.unpaired_electrons,
+                coords_angstrom=result.start_coords_bohr * BOHR_ANGSTROM)
+    bonds = tuple(replace(bond, rescored=rescore_bond(result, bond, level, threads)) for bond in result.bonds)
+    return replace(result, bonds=bonds)

@@ -16,19 +16,10 @@ from dataclasses import dataclass
 
 import numpy as np
 
-from .units import BOHR_ANGSTROM, rt_kcal_mol
-
-# CODATA 2018 (SI; h, c, k_B and N_A are exact by definition)
-PLANCK_J_S = 6.62607015e-34
-SPEED_OF_LIGHT_M_S = 299792458.0
-BOLTZMANN_J_K = 1.380649e-23
-AVOGADRO_PER_MOL = 6.02214076e23
-AMU_KG = 1.66053906660e-27
-HARTREE_J = 4.3597447222071e-18
-BOHR_M = BOHR_ANGSTROM * 1e-10
-CAL_J = 4.184  # thermochemical calorie
-
-GAS_CONSTANT_J_MOL_K = BOLTZMANN_J_K * AVOGADRO_PER_MOL
+from .units import (
+    AMU_KG, AVOGADRO_PER_MOL, BOHR_M, BOLTZMANN_J_K, CAL_J, GAS_CONSTANT_J_MOL_K, HARTREE_J, PLANCK_J_S,
+    SPEED_OF_LIGHT_M_S, rt_kcal_mol,
+)
 
 # sqrt(eigenvalue in Hartree/(Bohr^2 amu)) -> wavenumber in cm^-1
 _AU_TO_CM1 = math.sqrt(HARTREE_J / (BOHR_M**2 * AMU_KG)) / (2.0 * math.pi * SPEED_OF_LIGHT_M_S * 100.0)

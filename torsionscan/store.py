@@ -6,25 +6,27 @@ compound. The journal is write-ahead with full syncing: a killed writer loses at
 compound it was committing, never an earlier one, and readers (a report) can open it meanwhile.
 
 Tables: run (key/value: settings, their hash, package version), sessions (each invocation),
-compounds (one row each: input, status pending/done/failed, reason, the compound summary
-without its bonds), bonds (one row per scanned dihedral: its summary entry without points,
-plus the relaxed structures as XYZ/SDF text) and points (the profile, one row per angle).
+compounds (one row each: input, status pending/done/failed, reason, and for a done compound its
+whole result as ScanResult.to_dict() JSON text, the record everything else is rebuilt from) and
+points (derived from the result, for queries only: one row per profile point, energies in
+kcal/mol relative to the bond's profile zero, NULL where there is no value).
 """
 
 import hashlib
 import json
+import math
 import sqlite3
 from datetime import datetime, timezone
 from pathlib import Path
 
-from . import __version__
+from .version import __version__
 from .errors import InputError
 from .molecule import safe_name
-from .output.summary import POINT_KEYS
+from .records import ScanResult
 
 DATABASE_NAME = "run.sqlite"
 COMPOUND_FOLDER = "compounds"  # inside a run folder: one sub-folder of files per compound
-STORE_SCHEMA = 3
+STORE_SCHEMA = 4
 
 _TABLES = """
 CREATE TABLE IF NOT EXISTS run (key TEXT PRIMARY KEY, value TEXT NOT NULL);
@@ -34,21 +36,41 @@ CREATE TABLE IF NOT EXISTS sessions (
 CREATE TABLE IF NOT EXISTS compounds (
     name TEXT PRIMARY KEY, position INTEGER NOT NULL, smiles TEXT NOT NULL, input_json TEXT NOT NULL,
     status TEXT NOT NULL CHECK (status IN ('pending', 'done', 'failed')), reason TEXT NOT NULL DEFAULT '',
-    summary_json TEXT, session_id INTEGER REFERENCES sessions(id), attempts INTEGER NOT NULL DEFAULT 0,
-    wall_time_s REAL, peak_memory_mb REAL, worker TEXT, finished_utc TEXT);
-CREATE TABLE IF NOT EXISTS bonds (
-    compound TEXT NOT NULL REFERENCES compounds(name), bond TEXT NOT NULL, position INTEGER NOT NULL,
-    entry_json TEXT NOT NULL, scan_xyz TEXT NOT NULL, minima_sdf TEXT NOT NULL,
-    PRIMARY KEY (compound, bond));
+    result_json TEXT, rescore_failure TEXT NOT NULL DEFAULT '', session_id INTEGER REFERENCES sessions(id),
+    attempts INTEGER NOT NULL DEFAULT 0, wall_time_s REAL, peak_memory_mb REAL, worker TEXT, finished_utc TEXT);
 CREATE TABLE IF NOT EXISTS points (
-    compound TEXT NOT NULL, bond TEXT NOT NULL, angle_deg REAL NOT NULL, measured_angle_deg REAL,
-    energy_rel_kcal_mol REAL, energy_rel_kj_mol REAL, fit_kcal_mol REAL, converged INTEGER NOT NULL,
-    mirrored INTEGER NOT NULL, gradient_evaluations INTEGER NOT NULL, central_bond_order REAL,
-    homo_lumo_gap_ev REAL, failure TEXT NOT NULL DEFAULT '', energy_rescored_rel_kcal_mol REAL,
-    PRIMARY KEY (compound, bond, angle_deg), FOREIGN KEY (compound, bond) REFERENCES bonds(compound, bond));
+    compound TEXT NOT NULL REFERENCES compounds(name), bond TEXT NOT NULL, angle_deg REAL NOT NULL,
+    measured_angle_deg REAL, energy_rel_kcal_mol REAL, converged INTEGER NOT NULL, mirrored INTEGER NOT NULL,
+    gradient_evaluations INTEGER NOT NULL, central_bond_order REAL, homo_lumo_gap_ev REAL,
+    failure TEXT NOT NULL DEFAULT '', energy_rescored_rel_kcal_mol REAL,
+    PRIMARY KEY (compound, bond, angle_deg));
 """
-_POINT_COLUMNS = POINT_KEYS
-_BOOLEAN_POINT_COLUMNS = ("converged", "mirrored")
+POINT_COLUMNS = ("angle_deg", "measured_angle_deg", "energy_rel_kcal_mol", "converged", "mirrored",
+                 "gradient_evaluations", "central_bond_order", "homo_lumo_gap_ev", "failure",
+                 "energy_rescored_rel_kcal_mol")
+
+
+def _finite(value):
+    """A float for a database column: None for NaN or infinity."""
+    value = float(value)
+    return value if math.isfinite(value) else None
+
+
+def point_rows(result):
+    """(bond label, *POINT_COLUMNS) of every profile point of a ScanResult; kcal/mol relative to the
+    bond's profile zero, the re-scored energy relative to the re-scored profile's zero."""
+    rows = []
+    for bond in result.bonds:
+        rescored = {}
+        if bond.rescored is not None:
+            energies, analysis = bond.rescored.energies_hartree, bond.rescored.analysis
+            rescored = {id(p): _finite(analysis.relative_kcal_mol(energies[n])) for p, n in bond.points_with_frames()}
+        for p in bond.points:
+            rows.append((bond.label, float(p.angle_deg), _finite(p.measured_angle_deg),
+                         _finite(bond.profile.relative_kcal_mol(p.energy_hartree)), bool(p.converged),
+                         bool(p.mirrored), int(p.gradient_evaluations), _finite(p.central_bond_order),
+                         _finite(p.homo_lumo_gap_ev), p.failure, rescored.get(id(p))))
+    return rows
 
 
 def compound_folder(out_dir, name):
@@ -89,16 +111,31 @@ class RunStore:
         self.path.parent.mkdir(parents=True, exist_ok=True)
         self._db = sqlite3.connect(self.path, timeout=60.0)
         self._db.row_factory = sqlite3.Row
+        try:
+            self._open(folder)
+        except sqlite3.DatabaseError as error:
+            self.close()
+            raise InputError(f"{self.path} is not a readable run database ({error}); use a new --out folder") from None
+        except InputError:
+            self.close()
+            raise
+
+    def _open(self, folder):
+        """Check that the file is a run database of this format, then create missing tables."""
+        tables = {row[0] for row in self._db.execute("SELECT name FROM sqlite_master WHERE type = 'table'")}
+        if tables and "run" not in tables:
+            raise InputError(f"{self.path} is an SQLite file of another program, not a torsionscan run; "
+                             "use a new --out folder")
+        if "run" in tables:
+            row = self._db.execute("SELECT value FROM run WHERE key = 'store_schema'").fetchone()
+            if row is not None and row[0] != str(STORE_SCHEMA):
+                raise InputError(f"{folder} holds a run in another database format ({row[0]}, this version reads "
+                                 f"{STORE_SCHEMA}); use a new --out folder")
         self._db.execute("PRAGMA journal_mode=WAL")
         self._db.execute("PRAGMA synchronous=FULL")
         self._db.execute("PRAGMA foreign_keys=ON")
         with self._db:
             self._db.executescript(_TABLES)
-        stored = self.run_info().get("store_schema")
-        if stored is not None and stored != str(STORE_SCHEMA):
-            self.close()
-            raise InputError(f"{folder} holds a run in an older database format ({stored}, now {STORE_SCHEMA}); "
-                             "use a new --out folder")
 
     def close(self):
         self._db.close()
@@ -208,11 +245,13 @@ class RunStore:
         return [row[0] for row in rows]
 
     def compound(self, name):
-        """One compound's row as a dict (input_json decoded into 'input', 'where', 'extra')."""
+        """One compound's row as a dict (input_json decoded into 'input', 'where', 'extra'; without the
+        result: see result())."""
         row = self._db.execute("SELECT * FROM compounds WHERE name = ?", (name,)).fetchone()
         if row is None:
             raise KeyError(name)
         record = dict(row)
+        del record["result_json"]
         record.update(json.loads(record.pop("input_json")))
         return record
 
@@ -223,79 +262,45 @@ class RunStore:
             counts[status] = count
         return counts
 
-    def _clear_bonds(self, name):
+    def _clear_points(self, name):
         self._db.execute("DELETE FROM points WHERE compound = ?", (name,))
-        self._db.execute("DELETE FROM bonds WHERE compound = ?", (name,))
 
-    def record_done(self, name, summary, structures, session_id, wall_time_s, peak_memory_mb=None, worker=None):
-        """Store a finished compound in one transaction: its summary, bonds, points and structures."""
-        # lists kept in their own tables leave a null in place, so the rebuilt summary keeps its key order
-        compound_part = {key: (None if key == "bonds" else value) for key, value in summary.items()}
+    def record_done(self, name, result, session_id, wall_time_s, peak_memory_mb=None, worker=None,
+                    rescore_failure=""):
+        """Store a finished compound (a ScanResult) in one transaction: its result and its profile points.
+
+        rescore_failure: why the requested re-scoring is missing ("" when it was not asked for or worked).
+        Times in seconds, memory in MB.
+        """
+        text = json.dumps(result.to_dict(), allow_nan=False)
         with self._db:
-            self._clear_bonds(name)
-            for position, entry in enumerate(summary["bonds"]):
-                texts = structures.get(entry["bond"], {})
-                self._db.execute(
-                    "INSERT INTO bonds (compound, bond, position, entry_json, scan_xyz, minima_sdf) VALUES (?, ?, ?, ?, ?, ?)",
-                    (name, entry["bond"], position,
-                     json.dumps({k: (None if k == "points" else v) for k, v in entry.items()}, allow_nan=False),
-                     texts.get("scan_xyz", ""), texts.get("minima_sdf", "")),
-                )
-                self._db.executemany(
-                    f"INSERT INTO points (compound, bond, {', '.join(_POINT_COLUMNS)}) "
-                    f"VALUES (?, ?, {', '.join('?' * len(_POINT_COLUMNS))})",
-                    [(name, entry["bond"], *(p.get(column, "" if column == "failure" else None)
-                                             for column in _POINT_COLUMNS)) for p in entry["points"]],
-                )
+            self._clear_points(name)
+            self._db.executemany(
+                f"INSERT INTO points (compound, bond, {', '.join(POINT_COLUMNS)}) "
+                f"VALUES (?, ?, {', '.join('?' * len(POINT_COLUMNS))})",
+                [(name, *row) for row in point_rows(result)],
+            )
             self._db.execute(
-                "UPDATE compounds SET status = 'done', reason = '', summary_json = ?, session_id = ?, "
-                "attempts = attempts + 1, wall_time_s = ?, peak_memory_mb = ?, worker = ?, finished_utc = ? "
-                "WHERE name = ?",
-                (json.dumps(compound_part, allow_nan=False), session_id, wall_time_s, peak_memory_mb, worker,
-                 utc_now(), name),
+                "UPDATE compounds SET status = 'done', reason = '', result_json = ?, rescore_failure = ?, "
+                "session_id = ?, attempts = attempts + 1, wall_time_s = ?, peak_memory_mb = ?, worker = ?, "
+                "finished_utc = ? WHERE name = ?",
+                (text, rescore_failure, session_id, wall_time_s, peak_memory_mb, worker, utc_now(), name),
             )
 
     def record_failed(self, name, reason, session_id, wall_time_s=None, peak_memory_mb=None, worker=None):
         """Mark a compound failed with its reason (one transaction)."""
         with self._db:
-            self._clear_bonds(name)
+            self._clear_points(name)
             self._db.execute(
-                "UPDATE compounds SET status = 'failed', reason = ?, summary_json = NULL, session_id = ?, "
-                "attempts = attempts + 1, wall_time_s = ?, peak_memory_mb = ?, worker = ?, finished_utc = ? "
-                "WHERE name = ?",
+                "UPDATE compounds SET status = 'failed', reason = ?, result_json = NULL, rescore_failure = '', "
+                "session_id = ?, attempts = attempts + 1, wall_time_s = ?, peak_memory_mb = ?, worker = ?, "
+                "finished_utc = ? WHERE name = ?",
                 (reason, session_id, wall_time_s, peak_memory_mb, worker, utc_now(), name),
             )
 
-    def summary(self, name):
-        """A done compound's full summary (as output.summary.summary_dict made it)."""
-        row = self._db.execute("SELECT summary_json FROM compounds WHERE name = ?", (name,)).fetchone()
+    def result(self, name):
+        """A done compound's ScanResult, exactly as stored (KeyError if it is not done)."""
+        row = self._db.execute("SELECT result_json FROM compounds WHERE name = ?", (name,)).fetchone()
         if row is None or row[0] is None:
             raise KeyError(name)
-        summary = json.loads(row[0])
-        summary["bonds"] = []
-        for bond_row in self._db.execute(
-            "SELECT bond, entry_json FROM bonds WHERE compound = ? ORDER BY position", (name,)
-        ):
-            entry = json.loads(bond_row["entry_json"])
-            entry["points"] = []
-            for point in self._db.execute(
-                f"SELECT {', '.join(_POINT_COLUMNS)} FROM points WHERE compound = ? AND bond = ? ORDER BY angle_deg",
-                (name, bond_row["bond"]),
-            ):
-                point = dict(point)
-                for column in _BOOLEAN_POINT_COLUMNS:
-                    point[column] = bool(point[column])
-                if not point["failure"]:
-                    del point["failure"]
-                if point["energy_rescored_rel_kcal_mol"] is None and "rescored" not in entry:
-                    del point["energy_rescored_rel_kcal_mol"]
-                entry["points"].append(point)
-            summary["bonds"].append(entry)
-        return summary
-
-    def structures(self, name):
-        """{bond label: {"scan_xyz": text, "minima_sdf": text}} of a done compound."""
-        return {
-            row["bond"]: {"scan_xyz": row["scan_xyz"], "minima_sdf": row["minima_sdf"]}
-            for row in self._db.execute("SELECT bond, scan_xyz, minima_sdf FROM bonds WHERE compound = ?", (name,))
-        }
+        return ScanResult.from_dict(json.loads(row[0]))

@@ -19,6 +19,12 @@ import numpy as np
 from .units import rt_kcal_mol, wrap_deg
 
 _NODES_PER_PANEL = 8  # Gauss-Legendre nodes in each panel of the composite rule
+SCIS_LIMIT_DEG = 90.0  # the s-cis region is |phi| < 90 deg, the s-trans region |phi| > 90 deg
+
+
+def is_s_cis(angle_deg):
+    """True where a dihedral (degrees) lies in the s-cis region, |phi| < 90 deg: the one definition."""
+    return abs(float(wrap_deg(angle_deg))) < SCIS_LIMIT_DEG
 
 
 @dataclass(frozen=True)

@@ -31,15 +31,47 @@ SOLVENTS = {
 }
 
 
-class Engine(Protocol):
-    """Energy and gradient of one molecule; atomic units throughout."""
+# What an engine can do; output that needs a capability the engine lacks is left out.
+ENERGY, GRADIENT, CONJUGATION, SOLVENT, CHARGE, SPIN = (
+    "energy", "gradient", "conjugation", "solvent", "charge", "spin")
 
-    backend: str
+
+class Engine(Protocol):
+    """Energy and gradient of one molecule; atomic units throughout.
+
+    name: the implementation (recorded with every result); method: the method it computes, as
+    shown to users; capabilities: a set of the names above; max_atomic_number: element coverage;
+    caution: one paragraph on what its numbers are worth; evaluations: gradients computed so far.
+    An engine with CONJUGATION also offers conjugation(coords_bohr, j, k) -> (Wiberg bond order of
+    j-k, HOMO-LUMO gap in eV).
+    """
+
+    name: str
     method: str
+    capabilities: frozenset
+    max_atomic_number: int
+    caution: str
     evaluations: int
 
     def energy_and_gradient(self, coords_bohr: np.ndarray) -> tuple[float, np.ndarray]:
         """Energy in Hartree and gradient (N, 3) in Hartree/Bohr at coords (N, 3) in Bohr."""
+
+
+def _xtb_python():
+    from .xtbpython import XtbPythonEngine
+
+    return XtbPythonEngine
+
+
+def _tblite():
+    from .tblite import TbliteEngine
+
+    return TbliteEngine
+
+
+# name -> callable returning the engine class (imported only when chosen); a new GFN-xTB
+# implementation plugs in here and in BACKENDS, any other engine is passed to scan(engine=...)
+_REGISTRY = {"xtb-python": _xtb_python, "tblite": _tblite}
 
 
 def available_backends():
@@ -54,13 +86,14 @@ def available_backends():
     return found
 
 
-def check_electrons(numbers, charge, unpaired_electrons):
-    """Raise InputError if the charge and unpaired-electron count cannot describe the molecule."""
+def check_electrons(numbers, charge, unpaired_electrons, method="GFN-xTB", max_atomic_number=MAX_ATOMIC_NUMBER):
+    """Raise InputError if the elements are outside the method's coverage or the charge and
+    unpaired-electron count cannot describe the molecule."""
     numbers = np.asarray(numbers)
-    too_heavy = sorted({int(z) for z in numbers if z > MAX_ATOMIC_NUMBER or z < 1})
+    too_heavy = sorted({int(z) for z in numbers if z > max_atomic_number or z < 1})
     if too_heavy:
         raise InputError(
-            f"element(s) with atomic number {too_heavy} are not covered by GFN-xTB (H to Rn only)"
+            f"element(s) with atomic number {too_heavy} are not covered by {method} (up to Z = {max_atomic_number})"
         )
     electrons = int(numbers.sum()) - int(charge)
     if electrons < 0:
@@ -127,10 +160,7 @@ def make_engine(numbers, *, charge=0, unpaired_electrons=0, method="GFN2-xTB", b
     check_electrons(numbers, charge, unpaired_electrons)
     model = solvation_model(solvent, solvation)
     backend = resolve_backend(backend, solvent, solvation)
-    if backend == "xtb-python":
-        from .xtbpython import XtbPythonEngine as engine_class
-    else:
-        from .tblite import TbliteEngine as engine_class
+    engine_class = _REGISTRY[backend]()
     engine_solvent = None
     if model:
         tblite_name, xtb_name = SOLVENTS[solvent]

@@ -4,17 +4,27 @@ import numpy as np
 
 from ..errors import CalculationError
 from ..units import HARTREE_EV
+from . import CHARGE, CONJUGATION, ENERGY, GRADIENT, MAX_ATOMIC_NUMBER, SOLVENT, SPIN
+
+GFN_CAUTION = (
+    "Semi-empirical estimate: {method} (GFN2-xTB: Bannwarth, Ehlert, Grimme, J. Chem. Theory Comput. 2019, 15, 1652; "
+    "GFN1-xTB: Grimme, Bannwarth, Shushkov, J. Chem. Theory Comput. 2017, 13, 1989) "
+    "torsion energies are typically within about 1 kcal/mol of high-level references and sometimes worse. "
+    "Confirm decisions with higher-level calculations or experiment; this is not a safety assessment."
+)
 
 
 class WarmStartEngine:
     """Common body of an engine: keeps the calculator and the previous SCF solution.
 
-    Subclasses set ``backend`` and ``library_error`` (the library's exception type) and
+    Subclasses set ``name`` and ``library_error`` (the library's exception type) and
     implement ``_new_calculator``, ``_move``, ``_read`` and ``_electronic_structure``.
     """
 
-    backend = ""
+    name = ""
     library_error = Exception
+    capabilities = frozenset({ENERGY, GRADIENT, CONJUGATION, SOLVENT, CHARGE, SPIN})
+    max_atomic_number = MAX_ATOMIC_NUMBER
     # SCF and integral accuracy factor (library default 1.0). At 0.1 the gradient is converged
     # to ~1e-7 Hartree/Bohr (measured: xtb-python and tblite then agree to 5e-8 instead of 3e-6,
     # and match finite differences), which tight refinements need, at no measurable extra cost.
@@ -22,6 +32,7 @@ class WarmStartEngine:
 
     def __init__(self, numbers, charge, unpaired_electrons, method, solvent=None):
         self.method = method
+        self.caution = GFN_CAUTION.format(method=method)
         self.solvent = solvent  # (model, engine's solvent name) or None for the gas phase
         self.evaluations = 0
         self.numbers = numbers
@@ -64,7 +75,7 @@ class WarmStartEngine:
                 self._calculator = None
                 self._previous = None
                 message = " ".join(str(error).split())
-                raise CalculationError(f"{self.method} SCF failed ({self.backend}): {message}") from None
+                raise CalculationError(f"{self.method} SCF failed ({self.name}): {message}") from None
         self._previous = result
         self._previous_coords = coords_bohr.copy()
         energy, gradient = self._read(result)

@@ -9,7 +9,7 @@ from .base import WarmStartEngine
 class TbliteEngine(WarmStartEngine):
     """Engine backed by tblite."""
 
-    backend = "tblite"
+    name = "tblite"
     library_error = TBLiteRuntimeError
 
     def _new_calculator(self, coords_bohr):

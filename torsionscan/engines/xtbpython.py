@@ -12,7 +12,7 @@ _PARAMS = {"GFN2-xTB": Param.GFN2xTB, "GFN1-xTB": Param.GFN1xTB}
 class XtbPythonEngine(WarmStartEngine):
     """Engine backed by xtb-python."""
 
-    backend = "xtb-python"
+    name = "xtb-python"
     library_error = XTBException
 
     def _new_calculator(self, coords_bohr):

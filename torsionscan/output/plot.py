@@ -1,4 +1,11 @@
-"""The profile figure: scan points, fitted curve, s-cis/s-trans regions, minima and barriers."""
+"""Figures of a scanned bond: the profile (points, fit, regions, minima, barriers, optional
+conjugation panel and re-scored overlay) and the populations against temperature.
+
+Drawn from the records alone (ScanResult, BondScan), so a stored run can be re-plotted;
+energies in kcal/mol relative to the profile's zero, angles in degrees.
+"""
+
+import math
 
 import matplotlib
 
@@ -6,52 +13,70 @@ matplotlib.use("Agg")
 import matplotlib.pyplot as plt  # noqa: E402
 import numpy as np  # noqa: E402
 
-from ..profile import FourierSeries  # noqa: E402
+from ..thermo import SCIS_LIMIT_DEG, region_populations  # noqa: E402
 
 _SCIS_SHADE = "#dfe9f5"
 _STRANS_SHADE = "#f6eadb"
 _WINDOW_SHADE = "#b9d0ea"
+_RESCORED = "#d95f02"
 
 
-def profile_figure(name, entry, title=None):
-    """A matplotlib Figure of one dihedral's relaxed profile from its summary entry (output.summary.bond_dict).
+def _dihedral_text(result, bond):
+    return f"{result.name}: dihedral {'-'.join(str(a + 1) for a in bond.dihedral_atoms)}"
 
-    Drawn from the summary alone (relative energies in kcal/mol), so a stored run can be re-plotted.
+
+def has_conjugation_data(bond):
+    """True when the points of a BondScan carry finite Wiberg bond orders (engines with that capability)."""
+    return any(math.isfinite(p.central_bond_order) for p in bond.points)
+
+
+def profile_figure(result, bond, title=None):
+    """A matplotlib Figure of one bond's relaxed profile (a BondScan of the ScanResult).
+
+    Two panels when the points carry bond orders (the lower one: bond order and HOMO-LUMO gap
+    along the scan), one otherwise.
     """
-    coefficients = entry["fourier"]["series_kcal_mol"]
-    series = FourierSeries(coefficients["constant"], coefficients["cos"], coefficients["sin"])
-    fig, (ax, lower) = plt.subplots(2, 1, figsize=(8.0, 7.6), dpi=110, sharex=True,
-                                    gridspec_kw={"height_ratios": [3.0, 1.1]})
-    populations = entry["populations"]
-    window = populations[0]["scis_window_deg"] if populations else 30.0
-    ax.axvspan(-90, 90, color=_SCIS_SHADE, zorder=0, label="s-cis region (|φ| < 90°)")
+    analysis = bond.profile
+    series = analysis.fit.series
+    conjugation = has_conjugation_data(bond)
+    if conjugation:
+        fig, (ax, lower) = plt.subplots(2, 1, figsize=(8.0, 7.6), dpi=110, sharex=True,
+                                        gridspec_kw={"height_ratios": [3.0, 1.1]})
+    else:
+        fig, ax = plt.subplots(figsize=(8.0, 5.8), dpi=110)
+        lower = None
+    window = result.settings.scis_window_deg
+    limit = SCIS_LIMIT_DEG
+    ax.axvspan(-limit, limit, color=_SCIS_SHADE, zorder=0, label=f"s-cis region (|φ| < {limit:g}°)")
     ax.axvspan(-window, window, color=_WINDOW_SHADE, zorder=0, label=f"near-planar s-cis window (|φ| ≤ {window:g}°)")
-    ax.axvspan(-180, -90, color=_STRANS_SHADE, zorder=0, label="s-trans region (|φ| > 90°)")
-    ax.axvspan(90, 180, color=_STRANS_SHADE, zorder=0)
+    ax.axvspan(-180, -limit, color=_STRANS_SHADE, zorder=0, label=f"s-trans region (|φ| > {limit:g}°)")
+    ax.axvspan(limit, 180, color=_STRANS_SHADE, zorder=0)
 
     dense = np.linspace(-180, 180, 721)
     ax.plot(dense, series.value(dense), color="#333333", lw=1.5,
-            label=f"Fourier fit, order {series.order} (RMSE {entry['fourier']['rmse_kcal_mol']:.2f})")
+            label=f"Fourier fit, order {series.order} (RMSE {analysis.fit.rmse_kcal_mol:.2f})")
     for mirrored, legend in ((False, "relaxed scan points"), (True, "mirror images")):
-        pts = [p for p in entry["points"] if p["mirrored"] == mirrored and p["energy_rel_kcal_mol"] is not None]
+        pts = [(p, analysis.relative_kcal_mol(p.energy_hartree)) for p in bond.points
+               if p.mirrored == mirrored and math.isfinite(p.energy_hartree)]
         if not pts:
             continue
-        x = [p["angle_deg"] for p in pts]
-        y = [p["energy_rel_kcal_mol"] for p in pts]
-        ax.plot(x, y, "o", ms=5, mfc="white" if mirrored else "#1f5fa8", mec="#1f5fa8", ls="none", label=legend)
-        bad = [(p["angle_deg"], p["energy_rel_kcal_mol"]) for p in pts if not p["converged"]]
+        ax.plot([p.angle_deg for p, _ in pts], [e for _, e in pts], "o", ms=5,
+                mfc="white" if mirrored else "#1f5fa8", mec="#1f5fa8", ls="none", label=legend)
+        bad = [(p.angle_deg, e) for p, e in pts if not p.converged]
         if bad:
             ax.plot(*zip(*bad), "x", color="red", ms=8, ls="none", label="not converged")
 
-    if "rescored" in entry:
-        _rescored_overlay(ax, entry, dense)
+    top = max(float(series.value(dense).max()), 1.0)
+    if bond.rescored is not None:
+        top = max(top, _rescored_overlay(ax, bond, dense))
     for records, marker, colour, prefix, offset in (
-        (entry["minima"], "v", "#2a7f3f", "min ", -26), (entry["maxima"], "^", "#b23a2e", "", 8)
+        (analysis.minima, "v", "#2a7f3f", "min ", -26), (analysis.maxima, "^", "#b23a2e", "", 8)
     ):
         for m in records:
-            angle, e = m["angle_deg"], m["energy_rel_kcal_mol"]
-            if e is None:
+            e = analysis.relative_kcal_mol(m.energy_hartree)
+            if not math.isfinite(e):
                 continue
+            angle = m.angle_deg
             shown = round(abs(angle) if abs(angle) > 179.5 else angle)  # int: no "-0"
             label = f"{prefix}{shown}°\n{e:.2f}"
             # a point at +-180 deg sits on both edges of the plot: mark both, label the inner side
@@ -62,48 +87,51 @@ def profile_figure(name, entry, title=None):
                 ax.annotate(label, (x, e), textcoords="offset points", xytext=(0, offset), ha=align,
                             fontsize=8, color=colour)
 
-    for p in populations:
-        ax.plot([], [], " ", label=(f"{p['temperature_k']:g} K: s-cis {100 * p['s_cis']:.1f}%, "
-                                    f"s-trans {100 * p['s_trans']:.1f}%, window {100 * p['scis_window']:.1f}%"))
+    for p in analysis.populations:
+        ax.plot([], [], " ", label=(f"{p.temperature_k:g} K: s-cis {100 * p.s_cis:.1f}%, "
+                                    f"s-trans {100 * p.s_trans:.1f}%, window {100 * p.scis_window:.1f}%"))
     ax.set_xlim(-180, 180)
     ax.set_xticks(range(-180, 181, 45))
     ax.set_ylabel("relative energy / kcal mol⁻¹")
-    _conjugation_panel(lower, entry["points"])
-    lower.set_xlabel("dihedral φ / degrees   (0 = s-cis, ±180 = s-trans)")
-    top = max(series.value(dense).max(), 1.0)
-    if "rescored" in entry:
-        rescored = entry["rescored"]["fourier"]["series_kcal_mol"]
-        top = max(top, FourierSeries(rescored["constant"], rescored["cos"], rescored["sin"]).value(dense).max())
+    axis_label = "dihedral φ / degrees   (0 = s-cis, ±180 = s-trans)"
+    if lower is not None:
+        _conjugation_panel(lower, bond)
+        lower.set_xlabel(axis_label)
+    else:
+        ax.set_xlabel(axis_label)
     ax.set_ylim(-0.12 * top - 0.3, 1.25 * top + 0.3)
-    label = f"{name}: dihedral {'-'.join(str(a) for a in entry['dihedral_atoms'])}"
-    ax.set_title(title or f"{label} — relaxed {entry['method']} scan (semi-empirical estimate)", fontsize=10)
+    ax.set_title(title or f"{_dihedral_text(result, bond)} — relaxed {result.method} scan (an estimate)", fontsize=10)
     ax.legend(fontsize=7, loc="lower center", bbox_to_anchor=(0.5, 1.06), ncol=2, frameon=False)
     fig.tight_layout()
     return fig
 
 
-def _rescored_overlay(ax, entry, dense):
-    """The DFT re-scored profile (points and fit) over the semi-empirical one."""
-    coefficients = entry["rescored"]["fourier"]["series_kcal_mol"]
-    series = FourierSeries(coefficients["constant"], coefficients["cos"], coefficients["sin"])
-    ax.plot(dense, series.value(dense), "--", color="#d95f02", lw=1.4, label=f"re-scored fit: {entry['rescore_level']}")
-    shown = [p for p in entry["points"] if p.get("energy_rescored_rel_kcal_mol") is not None]
-    ax.plot([p["angle_deg"] for p in shown], [p["energy_rescored_rel_kcal_mol"] for p in shown], "D", color="#d95f02",
-            ms=4, ls="none", label="re-scored points (same geometries)")
-    warning = entry["method_disagreement"]["warning"]
+def _rescored_overlay(ax, bond, dense):
+    """The re-scored profile (its fit and its points at the same geometries) over the scan's;
+    returns the highest value of its fit (kcal/mol)."""
+    rescored = bond.rescored
+    series = rescored.analysis.fit.series
+    values = series.value(dense)
+    ax.plot(dense, values, "--", color=_RESCORED, lw=1.4, label=f"re-scored fit: {rescored.level}")
+    shown = [(p.angle_deg, rescored.analysis.relative_kcal_mol(rescored.energies_hartree[frame]))
+             for p, frame in bond.points_with_frames()]
+    shown = [(x, e) for x, e in shown if math.isfinite(e)]
+    if shown:
+        ax.plot(*zip(*shown), "D", color=_RESCORED, ms=4, ls="none", label="re-scored points (same geometries)")
+    warning = rescored.disagreement.warning
     if warning:
-        ax.text(0.5, 0.97, "methods disagree: " + warning.split(":")[0], transform=ax.transAxes, ha="center", va="top",
-                fontsize=7, color="#b23a2e", wrap=True)
+        ax.text(0.5, 0.97, "methods disagree: " + warning.split(":")[0], transform=ax.transAxes, ha="center",
+                va="top", fontsize=7, color="#b23a2e", wrap=True)
+    return float(values.max())
 
 
-def _conjugation_panel(ax, points):
-    """Wiberg bond order of the scanned bond (left axis) and HOMO-LUMO gap (right axis) along the scan."""
-    shown = sorted((p for p in points if p.get("central_bond_order") is not None), key=lambda p: p["angle_deg"])
-    angles = [p["angle_deg"] for p in shown]
-    ax.plot(angles, [p["central_bond_order"] for p in shown], "s-", color="#6a3d9a", ms=3, lw=1.2)
+def _conjugation_panel(ax, bond):
+    """Wiberg bond order of the scanned bond (left axis) and HOMO-LUMO gap (right axis, eV) along the scan."""
+    shown = sorted((p for p in bond.points if math.isfinite(p.central_bond_order)), key=lambda p: p.angle_deg)
+    ax.plot([p.angle_deg for p in shown], [p.central_bond_order for p in shown], "s-", color="#6a3d9a", ms=3, lw=1.2)
     ax.set_ylabel("bond order", color="#6a3d9a", fontsize=8)
     ax.tick_params(axis="y", labelcolor="#6a3d9a", labelsize=8)
-    gaps = [(p["angle_deg"], p["homo_lumo_gap_ev"]) for p in shown if p.get("homo_lumo_gap_ev") is not None]
+    gaps = [(p.angle_deg, p.homo_lumo_gap_ev) for p in shown if math.isfinite(p.homo_lumo_gap_ev)]
     if gaps:
         right = ax.twinx()
         right.plot(*zip(*gaps), "d--", color="#b15928", ms=3, lw=1.0)
@@ -112,30 +140,29 @@ def _conjugation_panel(ax, points):
     ax.set_title("conjugation along the scan: Wiberg bond order of the scanned bond and HOMO–LUMO gap", fontsize=8)
 
 
-def populations_figure(name, entry, temperature_range_k):
-    """s-cis and near-planar s-cis window populations against temperature (integrated over the fit),
-    with the free-energy (RRHO) s-cis populations at the run's temperatures where computed."""
-    from ..thermo import region_populations
-
-    coefficients = entry["fourier"]["series_kcal_mol"]
-    series = FourierSeries(coefficients["constant"], coefficients["cos"], coefficients["sin"])
-    window = entry["populations"][0]["scis_window_deg"] if entry["populations"] else 30.0
-    temperatures = np.linspace(*temperature_range_k, 41)
+def populations_figure(result, bond):
+    """s-cis and near-planar s-cis window populations (%) against temperature (K, over
+    result.settings.temperature_range_k), integrated over the fit, with the free-energy (RRHO)
+    s-cis populations at the run's temperatures where computed."""
+    series = bond.profile.fit.series
+    window = result.settings.scis_window_deg
+    temperature_range = tuple(result.settings.temperature_range_k)
+    temperatures = np.linspace(*temperature_range, 41)
     integrated = [region_populations(series.value, t, window) for t in temperatures]
     fig, ax = plt.subplots(figsize=(7.0, 4.5), dpi=110)
     ax.plot(temperatures, [100 * p.s_cis for p in integrated], "-", color="#1f5fa8", lw=1.8,
-            label="s-cis (|φ| < 90°), integrated over the profile")
+            label=f"s-cis (|φ| < {SCIS_LIMIT_DEG:g}°), integrated over the profile")
     ax.plot(temperatures, [100 * p.scis_window for p in integrated], "--", color="#1f5fa8", lw=1.2,
             label=f"near-planar s-cis window (|φ| ≤ {window:g}°)")
-    rrho = [(p["temperature_k"], 100 * p["s_cis_rrho"]) for p in entry["populations"] if "s_cis_rrho" in p]
+    rrho = [(r.temperature_k, 100 * r.s_cis) for r in bond.profile.rrho_populations]
     if rrho:
         ax.plot(*zip(*rrho), "D", color="#b15928", ms=6, label="s-cis from free energies of the minima (RRHO)")
-    ax.set_xlim(*temperature_range_k)
+    ax.set_xlim(*temperature_range)
     ax.set_ylim(0, None)
     ax.set_xlabel("temperature / K")
     ax.set_ylabel("population / %")
-    ax.set_title(f"{name}: dihedral {'-'.join(str(a) for a in entry['dihedral_atoms'])} — populations vs temperature "
-                 "(semi-empirical estimate)", fontsize=9)
+    ax.set_title(f"{_dihedral_text(result, bond)} — populations vs temperature ({result.method} estimate)",
+                 fontsize=9)
     ax.legend(fontsize=8, frameon=False)
     fig.tight_layout()
     return fig

@@ -1,24 +1,30 @@
-"""The run-level outputs of a batch, rebuilt from its database alone: the results table (CSV),
-an overview figure, every compound's folder and a self-contained HTML report."""
+"""The run-level table and overview figure of a batch, as pure functions of records.
 
-import csv
-from pathlib import Path
+compound_rows turns one compound (its list record and, when done, its ScanResult) into table
+rows; overview_figure draws the ranked s-cis populations. Reading the run database and writing
+the files is torsionscan.runfolder's job. Energies in kcal/mol, angles in degrees; values are
+rounded here, for the table.
+"""
+
+import math
 
 import matplotlib.pyplot as plt
 
-from ..store import RunStore, compound_folder, utc_now
-from . import atomic_write, bond_stem, figure_bytes, write_compound_folder
-from .html import html_report
-from .summary import METHOD_CAUTION
+from ..profile import FIT_TARGET_KCAL_MOL
 
-TABLE_NAME = "scan_table.csv"
-OVERVIEW_NAME = "overview.png"
-REPORT_NAME = "report.html"
 _OVERVIEW_ROWS = 40  # bars drawn in the overview; a longer run shows its highest s-cis populations
+_ANGLE_DIGITS, _ENERGY_DIGITS, _BARRIER_DIGITS, _DELTA_G_DIGITS = 3, 5, 4, 4
 
 
 def _temperature_key(temperature_k):
     return f"{temperature_k:g}K"
+
+
+def _rounded(value, digits):
+    """value rounded for the table (-0.0 as 0.0); None stays None, NaN and infinity become None."""
+    if value is None or not math.isfinite(value):
+        return None
+    return round(float(value), digits) + 0.0
 
 
 def table_columns(temperatures_k, extra_columns):
@@ -37,80 +43,78 @@ def table_columns(temperatures_k, extra_columns):
     return columns + [c for c in extra_columns if c not in columns]
 
 
-def _lowest(minima, in_region):
-    chosen = [m for m in minima if m["energy_rel_kcal_mol"] is not None and in_region(abs(m["angle_deg"]))]
-    return min(chosen, key=lambda m: m["energy_rel_kcal_mol"], default=None)
+def _angle(record):
+    return None if record is None else _rounded(record.angle_deg, _ANGLE_DIGITS)
 
 
-def bond_row(entry):
-    """The table values of one scanned bond (summary entry), and of its re-scored profile if any."""
-    row = _profile_row(entry)
-    if "rescored" in entry:
-        rescored = _profile_row({**entry, **entry["rescored"], "points": []})
-        row.update({"rescore_level": entry["rescore_level"],
-                    "rescored_global_min_deg": rescored["global_min_deg"],
-                    "rescored_barrier_to_other_region_kcal_mol": rescored["barrier_to_other_region_kcal_mol"],
-                    "method_disagreement_max_kcal_mol": entry["method_disagreement"]["max_kcal_mol"],
-                    "method_disagreement_warning": entry["method_disagreement"]["warning"] or ""})
-        for p in entry["rescored"]["populations"]:
-            row[f"rescored_s_cis_{_temperature_key(p['temperature_k'])}"] = p["s_cis"]
-    return row
+def _extremes(analysis):
+    """(global minimum angle, lowest s-cis minimum angle, barrier into the other region) of a ProfileAnalysis."""
+    return (_angle(analysis.lowest_minimum()), _angle(analysis.lowest_minimum("s-cis")),
+            _rounded(analysis.barrier_to_other_region(), _BARRIER_DIGITS))
 
 
-def _profile_row(entry):
-    minima = entry["minima"]
-    best = _lowest(minima, lambda a: True)
-    scis = _lowest(minima, lambda a: a < 90.0)
-    strans = _lowest(minima, lambda a: a > 90.0)
-    crossing = None
-    if best is not None:
-        best_is_cis = abs(best["angle_deg"]) < 90.0
-        heights = [
-            b["height_kcal_mol"] for b in entry["barriers"]
-            if abs(b["from_minimum_deg"] - best["angle_deg"]) < 1e-3
-            and (abs(b["to_minimum_deg"]) < 90.0) != best_is_cis
-        ]
-        crossing = min(heights, default=None)
-    energies = [p["energy_rel_kcal_mol"] for p in entry["points"] if p["energy_rel_kcal_mol"] is not None]
-    energies += [m["energy_rel_kcal_mol"] for m in entry["maxima"] if m["energy_rel_kcal_mol"] is not None]
+def bond_row(bond):
+    """The table values of one scanned bond (BondScan), and of its re-scored profile if any."""
+    profile = bond.profile
+
+    def relative(record):
+        return None if record is None else _rounded(profile.relative_kcal_mol(record.energy_hartree), _ENERGY_DIGITS)
+
+    global_min, scis_min, barrier = _extremes(profile)
+    energies = [relative(r) for r in (*bond.points, *profile.maxima)]
+    energies = [e for e in energies if e is not None]
     row = {
-        "bond": entry["bond"], "dihedral_atoms": "-".join(str(a) for a in entry["dihedral_atoms"]),
-        "global_min_deg": best and best["angle_deg"],
-        "scis_min_deg": scis and scis["angle_deg"],
-        "scis_min_rel_kcal_mol": scis and scis["energy_rel_kcal_mol"],
-        "strans_min_rel_kcal_mol": strans and strans["energy_rel_kcal_mol"],
-        "barrier_to_other_region_kcal_mol": crossing,
+        "bond": bond.label, "dihedral_atoms": "-".join(str(a + 1) for a in bond.dihedral_atoms),
+        "global_min_deg": global_min, "scis_min_deg": scis_min,
+        "scis_min_rel_kcal_mol": relative(profile.lowest_minimum("s-cis")),
+        "strans_min_rel_kcal_mol": relative(profile.lowest_minimum("s-trans")),
+        "barrier_to_other_region_kcal_mol": barrier,
         "rotation_max_kcal_mol": max(energies, default=None),
-        "fit_rmse_kcal_mol": entry["fourier"]["rmse_kcal_mol"],
-        "fit_target_met": entry["fourier"]["target_met"],
-        "hysteresis": entry["hysteresis"]["flagged"],
+        "fit_rmse_kcal_mol": _rounded(profile.fit.rmse_kcal_mol, _ENERGY_DIGITS),
+        "fit_target_met": profile.fit.rmse_kcal_mol <= FIT_TARGET_KCAL_MOL,
+        "hysteresis": bool(bond.hysteresis),
     }
-    for p in entry["populations"]:
-        key = _temperature_key(p["temperature_k"])
-        row[f"s_cis_{key}"] = p["s_cis"]
-        row[f"scis_window_{key}"] = p["scis_window"]
-        row[f"dG_scis_minus_strans_{key}_kcal_mol"] = p["delta_g_scis_minus_strans_kcal_mol"]
-        row[f"s_cis_rrho_{key}"] = p.get("s_cis_rrho")
-    for r in entry.get("cycloaddition_readiness", []):
-        row[f"dG_to_planar_scis_{_temperature_key(r['temperature_k'])}_kcal_mol"] = r["dG_to_planar_scis_kcal_mol"]
+    rrho = {p.temperature_k: p for p in profile.rrho_populations}
+    for p in profile.populations:
+        key = _temperature_key(p.temperature_k)
+        row[f"s_cis_{key}"] = p.s_cis
+        row[f"scis_window_{key}"] = p.scis_window
+        row[f"dG_scis_minus_strans_{key}_kcal_mol"] = _rounded(p.delta_g_kcal_mol, _DELTA_G_DIGITS)
+        row[f"s_cis_rrho_{key}"] = rrho[p.temperature_k].s_cis if p.temperature_k in rrho else None
+    for r in profile.readiness:
+        row[f"dG_to_planar_scis_{_temperature_key(r.temperature_k)}_kcal_mol"] = _rounded(r.delta_g_kcal_mol,
+                                                                                          _DELTA_G_DIGITS)
+    if bond.rescored is not None:
+        rescored = bond.rescored
+        global_min, _, barrier = _extremes(rescored.analysis)
+        row.update({"rescore_level": rescored.level, "rescored_global_min_deg": global_min,
+                    "rescored_barrier_to_other_region_kcal_mol": barrier,
+                    "method_disagreement_max_kcal_mol": _rounded(rescored.disagreement.max_kcal_mol, _BARRIER_DIGITS),
+                    "method_disagreement_warning": rescored.disagreement.warning or ""})
+        for p in rescored.analysis.populations:
+            row[f"rescored_s_cis_{_temperature_key(p.temperature_k)}"] = p.s_cis
     return row
 
 
-def compound_rows(record, summary):
-    """Table rows of one compound (record: RunStore.compound; summary: None unless done)."""
+def compound_rows(record, result):
+    """Table rows of one compound: record is its list record (RunStore.compound), result its
+    ScanResult, None unless done. A done compound whose re-scoring failed says so in its reason."""
     # list columns first, so a column of the same name as one of ours cannot replace our value
     base = {**record["extra"], "name": record["name"], "smiles": record["smiles"],
             "compound_wall_time_s": record["wall_time_s"]}
-    if summary is None:
+    if result is None:
         return [{**base, "status": record["status"], "reason": record["reason"]}]
-    base["smiles"] = summary["smiles"]
-    rows = [{**base, **bond_row(entry), "status": "done", "reason": ""} for entry in summary["bonds"]]
-    rows += [{**base, "bond": f["bond"], "status": "failed", "reason": f["reason"]} for f in summary["failed_bonds"]]
+    base["smiles"] = result.smiles
+    reason = record.get("rescore_failure") or ""
+    rows = [{**base, **bond_row(bond), "status": "done", "reason": reason} for bond in result.bonds]
+    rows += [{**base, "bond": label, "status": "failed", "reason": why} for label, why in result.failed_bonds]
     return rows
 
 
-def overview_figure(rows, temperature_k):
-    """Ranked bars: s-cis population of every scanned bond at one temperature, barrier beside it."""
+def overview_figure(rows, temperature_k, method):
+    """Ranked bars: s-cis population of every scanned bond at one temperature, barrier beside it.
+
+    method: what computed the profiles (ScanResult.method), named in the title."""
     key = f"s_cis_{_temperature_key(temperature_k)}"
     done = sorted((r for r in rows if r.get(key) is not None), key=lambda r: r[key], reverse=True)
     shown = done[:_OVERVIEW_ROWS]
@@ -130,63 +134,6 @@ def overview_figure(rows, temperature_k):
     ax.set_xlabel(f"s-cis population (|φ| < 90°) at {temperature_k:g} K / %")
     more = f" (highest {len(shown)} of {len(done)})" if len(done) > len(shown) else ""
     ax.set_title(f"s-cis population by bond{more}; barrier from the global minimum into the other region\n"
-                 "GFN2-xTB relaxed scans: semi-empirical estimates", fontsize=9)
+                 f"{method} relaxed scans", fontsize=9)
     fig.tight_layout()
     return fig
-
-
-def write_run_report(out_dir, rebuild_folders=False):
-    """Write the table, overview and HTML report of a run folder from its database.
-
-    rebuild_folders: rewrite every done compound's folder too (else only missing plots are redrawn).
-    Returns (path of the HTML report, number of table rows).
-    """
-    out_dir = Path(out_dir)
-    with RunStore(out_dir, create=False) as store:
-        info = store.run_info()
-        settings = store.settings()
-        records = [store.compound(name) for name in store.names()]
-        summaries = {r["name"]: store.summary(r["name"]) for r in records if r["status"] == "done"}
-        extra = [key for r in records for key in r["extra"]]
-        rows, plots = [], {}
-        for record in records:
-            summary = summaries.get(record["name"])
-            rows += compound_rows(record, summary)
-            if summary is None:
-                continue
-            folder = compound_folder(out_dir, record["name"])
-            images = [folder / f"{bond_stem(entry['bond'])}_profile.png" for entry in summary["bonds"]]
-            complete = (folder / "summary.json").is_file() and all(image.is_file() for image in images)
-            if rebuild_folders or not complete:
-                write_compound_folder(summary, store.structures(record["name"]), folder)
-            plots[record["name"]] = [(entry["bond"], image.read_bytes()) for entry, image in zip(summary["bonds"], images)]
-        counts = store.counts()
-
-    columns = table_columns(settings["temperatures_k"], list(dict.fromkeys(extra)))
-
-    def write_table(path):
-        with path.open("w", newline="") as handle:
-            writer = csv.DictWriter(handle, fieldnames=columns, extrasaction="ignore")
-            writer.writeheader()
-            writer.writerows(rows)
-
-    atomic_write(out_dir / TABLE_NAME, write_table)
-    figure = overview_figure(rows, settings["temperatures_k"][0])
-    overview = figure_bytes(figure, "png")
-    plt.close(figure)
-    atomic_write(out_dir / OVERVIEW_NAME, lambda p: p.write_bytes(overview))
-    run_info = {
-        "run folder": str(out_dir), "compound list": info.get("list_file", ""),
-        "compounds done": counts["done"], "failed": counts["failed"], "pending": counts["pending"],
-        "method": settings["method"], "package version": info.get("package_version", ""),
-        "settings hash": info.get("settings_hash", "")[:16], "created": info.get("created_utc", ""),
-        "generated": utc_now(),
-    }
-    page = html_report(
-        title=f"Torsion scans: {out_dir.name}", run_info=run_info, settings=settings, caution=METHOD_CAUTION,
-        columns=columns, rows=rows, plots=plots, overview_png=overview,
-    )
-    report = out_dir / REPORT_NAME
-    atomic_write(report, lambda p: p.write_text(page, encoding="utf-8"))
-    return report, len(rows)
-

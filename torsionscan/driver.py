@@ -1,0 +1,279 @@
+"""The scan driver: start structure, two-way sweeps over a scan coordinate, refinement of the
+stationary points, frequencies, and the scan() entry point.
+
+From the start minimum the coordinate is driven over its grid in the order of its visit plan
+(coordinate.ScanCoordinate), each point warm-started from its neighbour (geometry rigidly turned
+about the bond and the neighbour's quasi-Newton Hessian turned with it). Every grid point is
+reached once from each direction; where the two arrivals differ the lower energy is kept and a
+difference above the hysteresis threshold is recorded. The profile is then analysed by
+analysis.analyse_profile with the refinement of its minima and maxima done here.
+"""
+
+import logging
+import time
+from dataclasses import replace
+
+import numpy as np
+
+from .version import __version__
+from .analysis import analyse_profile, display_angle, in_arc
+from .coordinate import DihedralConstraint, ScanCoordinate, mirror, mirror_hessian
+from .engines import CONJUGATION, make_engine
+from .errors import CalculationError, InputError
+from .freeenergy import add_free_energies
+from .molecule import (
+    find_conjugated_bonds, is_diene_bond, load_molecule, select_bond, side_atoms, starting_structures,
+)
+from .records import BondScan, Hysteresis, ScanPoint, ScanResult, StationaryRecord
+from .relax import Relaxer
+from .settings import ScanSettings
+from .units import ANGSTROM_BOHR, HARTREE_KCAL_MOL, wrap_deg
+
+log = logging.getLogger(__name__)
+
+
+def relax_start(molecule, relaxer, settings):
+    """Lowest GFN-xTB minimum among the seeded start structures: (coords_bohr, energy, hessian, evaluations)."""
+    best = None
+    evaluations = 0
+    errors = []
+    for coords in starting_structures(molecule, settings.conformers, settings.seed):
+        try:
+            result = relaxer.relax(coords * ANGSTROM_BOHR, settings.start_convergence)
+        except CalculationError as error:
+            errors.append(str(error))
+            continue
+        evaluations += result.evaluations
+        if best is None or (result.converged, -result.energy) > (best.converged, -best.energy):
+            best = result
+    if best is None:
+        raise CalculationError(errors[0] if errors else "no start structure could be optimised")
+    return best.x.reshape(-1, 3), best.energy, best.hessian, evaluations
+
+
+def _failed_point(target_deg, coords, evaluations, reason):
+    return ScanPoint(
+        angle_deg=float(target_deg), measured_angle_deg=float("nan"), energy_hartree=float("nan"),
+        converged=False, gradient_evaluations=evaluations, max_gradient=float("nan"),
+        coords_bohr=coords, failure=reason,
+    )
+
+
+class _BondScanner:
+    """Carries the state of one bond's scan (visits with their Hessians) between its stages."""
+
+    def __init__(self, molecule, bond, relaxer, settings):
+        self.bond = bond
+        self.relaxer = relaxer
+        self.settings = settings
+        self.coordinate = ScanCoordinate(
+            dihedrals=(bond.atoms,), moving=(tuple(int(a) for a in side_atoms(molecule, *bond.atoms[1:3])),),
+            step_deg=settings.step_deg, mirror_symmetric=not molecule.has_stereocentres,
+        )
+        self.symmetric = self.coordinate.mirror_symmetric
+        self.conjugation = CONJUGATION in relaxer.engine.capabilities
+        self.visits = {}  # canonical grid point -> list of (ScanPoint, hessian)
+
+    def _point(self, result, index):
+        coords = result.x.reshape(-1, 3)
+        (target,) = self.coordinate.angles_deg(index)
+        (measured,) = self.coordinate.measure_deg(coords)
+        return ScanPoint(
+            angle_deg=float(wrap_deg(target)), measured_angle_deg=measured, energy_hartree=result.energy,
+            converged=result.converged, gradient_evaluations=result.evaluations, max_gradient=result.max_gradient,
+            coords_bohr=coords,
+        )
+
+    def relax_at(self, coords, hessian, angles_deg, convergence):
+        """Turn a structure to the angles and relax it there; the optimisation result."""
+        turned, turned_hessian = self.coordinate.turn(coords, hessian, angles_deg)
+        constraints = [DihedralConstraint(atoms, np.radians(a)) for atoms, a in zip(self.coordinate.dihedrals, angles_deg)]
+        return self.relaxer.relax(turned, convergence, turned_hessian, constraints)
+
+    def _visit(self, index, coords, hessian):
+        key = self.coordinate.canonical(index)
+        angle = float(wrap_deg(self.coordinate.angles_deg(index)[0]))
+        evaluations_before = self.relaxer.engine.evaluations
+        try:
+            result = self.relax_at(coords, hessian, self.coordinate.angles_deg(index), self.settings.point_convergence)
+            point = self._point(result, index)
+            if self.conjugation:
+                order, gap = self.relaxer.engine.conjugation(point.coords_bohr, *self.bond.atoms[1:3])
+                point = replace(point, central_bond_order=order, homo_lumo_gap_ev=gap)
+        except CalculationError as error:
+            used = self.relaxer.engine.evaluations - evaluations_before
+            self.visits.setdefault(key, []).append((_failed_point(angle, coords, used, str(error)), hessian))
+            log.warning("dihedral %s: point %.1f deg failed: %s", self.bond.label, angle, error)
+            return coords, hessian
+        self.visits.setdefault(key, []).append((point, result.hessian))
+        return point.coords_bohr, result.hessian
+
+    def sweep(self, start_coords, start_hessian):
+        """Run all sweeps from the start structure."""
+        start, coords, hessian = self.coordinate.start_point(start_coords, start_hessian)
+        first = self._visit(start, coords, hessian)
+        for leg in self.coordinate.sweep_plan(start):
+            coords, hessian = first
+            for index in leg:
+                coords, hessian = self._visit(index, coords, hessian)
+
+    def chosen_points(self):
+        """Best visit per grid point (converged first, then lowest energy), plus hysteresis records."""
+        chosen, hysteresis = {}, []
+        for index, visits in sorted(self.visits.items()):
+            ok = [v for v in visits if v[0].converged]
+            pool = ok or [v for v in visits if np.isfinite(v[0].energy_hartree)] or visits
+            chosen[index] = min(pool, key=lambda v: v[0].energy_hartree if np.isfinite(v[0].energy_hartree) else np.inf)
+            if len(ok) > 1:
+                energies = [v[0].energy_hartree for v in ok]
+                spread = (max(energies) - min(energies)) * HARTREE_KCAL_MOL
+                if spread > self.settings.hysteresis_kcal_mol:
+                    hysteresis.append(Hysteresis(chosen[index][0].angle_deg, spread))
+        return chosen, hysteresis
+
+    def full_circle(self, chosen):
+        """Points around the whole circle (mirror images added for symmetric profiles), by angle."""
+        points = dict(chosen)
+        if self.symmetric:
+            for index, (point, hessian) in chosen.items():
+                image = self.coordinate.mirror_index(index)
+                if image not in chosen:
+                    points[image] = (replace(
+                        point, angle_deg=-point.angle_deg, measured_angle_deg=-point.measured_angle_deg,
+                        coords_bohr=mirror(point.coords_bohr), mirrored=True,
+                    ), mirror_hessian(hessian))
+        return sorted(points.values(), key=lambda item: display_angle(item[0].angle_deg))
+
+    def nearest(self, circle, angle_deg):
+        """The usable circle entry (point, hessian) nearest to angle_deg."""
+        usable = [item for item in circle if np.isfinite(item[0].energy_hartree)]
+        return min(usable, key=lambda item: abs(wrap_deg(item[0].angle_deg - angle_deg)))
+
+    def refine(self, circle, stationary, basin):
+        """Refine one fitted stationary point: minima by free optimisation, maxima constrained; a
+        failed refinement falls back to the nearest grid point, flagged."""
+        try:
+            return self._refine(circle, stationary, basin)
+        except CalculationError as error:
+            point, _ = self.nearest(circle, stationary.angle_deg)
+            return StationaryRecord(
+                stationary.kind, point.angle_deg, stationary.angle_deg, point.energy_hartree,
+                f"refinement failed ({error}); nearest grid point used", False, point.coords_bohr,
+            )
+
+    def _refine(self, circle, stationary, basin):
+        fit_angle = stationary.angle_deg
+        if self.symmetric and fit_angle < -1e-9:
+            mirrored = self._refine(circle, replace(stationary, angle_deg=-fit_angle), (-basin[1], -basin[0]))
+            return replace(
+                mirrored, angle_deg=display_angle(-mirrored.angle_deg), fit_angle_deg=fit_angle,
+                coords_bohr=mirror(mirrored.coords_bohr),
+            )
+        point, hessian = self.nearest(circle, fit_angle)
+        convergence = self.settings.refine_convergence
+        if stationary.kind == "minimum":
+            result = self.relaxer.relax(point.coords_bohr, convergence, hessian)
+            if in_arc(self.coordinate.measure_deg(result.x)[0], *basin):
+                return self._stationary(result, "minimum", fit_angle, "free optimisation")
+            how = "constrained at the fitted angle (free optimisation left the basin)"
+        else:
+            if abs(wrap_deg(point.angle_deg - fit_angle)) < 0.05 and point.converged:
+                return StationaryRecord(
+                    "maximum", display_angle(point.measured_angle_deg), fit_angle, point.energy_hartree,
+                    "grid point", point.converged, point.coords_bohr,
+                )
+            how = "constrained at the fitted angle"
+        result = self.relax_at(point.coords_bohr, hessian, (fit_angle,), convergence)
+        return self._stationary(result, stationary.kind, fit_angle, how)
+
+    def _stationary(self, result, kind, fit_angle, how):
+        coords = result.x.reshape(-1, 3)
+        return StationaryRecord(kind, display_angle(self.coordinate.measure_deg(coords)[0]), fit_angle,
+                                result.energy, how, result.converged, coords)
+
+
+def scan_bond(molecule, bond, relaxer, start, settings):
+    """Relaxed scan of one dihedral from the start minimum `start` = (coords, energy, hessian)."""
+    began = time.perf_counter()
+    evaluations_before = relaxer.engine.evaluations
+    scanner = _BondScanner(molecule, bond, relaxer, settings)
+    scanner.sweep(start[0], start[2])
+    chosen, hysteresis = scanner.chosen_points()
+    circle = scanner.full_circle(chosen)
+    good = [p for p, _ in circle if p.converged]
+    if len(good) < 5:
+        raise CalculationError(
+            f"dihedral {bond.label}: only {len(good)} scan points converged; try another --engine or check the structure"
+        )
+    profile = analyse_profile(
+        [p.angle_deg for p in good], [p.energy_hartree for p in good], scanner.symmetric, settings.temperatures_k,
+        settings.scis_window_deg, refine=lambda stationary, basin: scanner.refine(circle, stationary, basin),
+    )
+    points = tuple(replace(p, angle_deg=display_angle(p.angle_deg)) for p, _ in circle)
+    bond_scan = BondScan(
+        dihedral_atoms=bond.atoms, conjugated=bond.conjugated, symmetric=scanner.symmetric,
+        points=tuple(sorted(points, key=lambda p: p.angle_deg)), profile=profile, hysteresis=tuple(hysteresis),
+        hysteresis_threshold_kcal_mol=settings.hysteresis_kcal_mol,
+        gradient_evaluations_total=relaxer.engine.evaluations - evaluations_before,
+        wall_time_s=time.perf_counter() - began,
+    )
+    if settings.frequencies:
+        masses = [atom.GetMass() for atom in molecule.mol.GetAtoms()]
+        planar_start = None
+        if is_diene_bond(molecule.mol, bond.atoms):
+            planar_start = scanner.nearest(circle, 0.0)
+        scanned, started = relaxer.engine.evaluations, time.perf_counter()
+        try:
+            bond_scan = replace(bond_scan, profile=add_free_energies(
+                bond_scan.profile, bond.atoms, bond_scan.symmetric, relaxer, masses, settings,
+                planar_start and (planar_start[0].coords_bohr, planar_start[1])))
+        except (CalculationError, ValueError, np.linalg.LinAlgError) as error:
+            log.warning("dihedral %s: frequencies failed (%s); free energies left out", bond.label, error)
+        bond_scan = replace(bond_scan, frequency_gradient_evaluations=relaxer.engine.evaluations - scanned,
+                            frequency_wall_time_s=time.perf_counter() - started)
+    return bond_scan
+
+
+def scan(source, *, bond=None, name=None, charge=None, unpaired_electrons=0, record=1, settings=None,
+         time_limit_s=None, engine=None):
+    """Relaxed torsion scan of every conjugated single bond of a molecule (or the one `bond` names).
+
+    source: SMILES string, MOL/SDF/XYZ path or RDKit molecule; bond: 1-based "j-k" or "i-j-k-l".
+    time_limit_s: wall-clock seconds allowed for the whole molecule (checked before each gradient).
+    engine: an engine object for this molecule (engines.Engine); default: the GFN-xTB engine the
+    settings name. Returns a ScanResult; raises InputError, CalculationError or TimeLimitExceeded.
+    """
+    deadline = None if time_limit_s is None else time.monotonic() + time_limit_s
+    settings = settings or ScanSettings()
+    settings.check()
+    molecule = load_molecule(source, name=name, charge=charge, unpaired_electrons=unpaired_electrons, record=record)
+    bonds = [select_bond(molecule, bond)] if bond else find_conjugated_bonds(molecule)
+    if not bonds:
+        raise InputError(
+            f"{molecule.smiles}: no conjugated single bond found; pick a bond with --bond j-k (1-based atom numbers)"
+        )
+    if engine is None:
+        engine = make_engine(
+            molecule.numbers, charge=molecule.charge, unpaired_electrons=molecule.unpaired_electrons,
+            method=settings.method, backend=settings.engine, solvent=settings.solvent,
+            solvation=settings.solvation_model,
+        )
+    relaxer = Relaxer(engine, molecule.numbers, deadline)
+    coords, energy, hessian, start_evaluations = relax_start(molecule, relaxer, settings)
+    scans, failed = [], []
+    for b in bonds:
+        try:
+            scans.append(scan_bond(molecule, b, relaxer, (coords, energy, hessian), settings))
+        except CalculationError as error:
+            log.warning("dihedral %s failed: %s", b.label, error)
+            failed.append((b.label, str(error)))
+    if not scans:
+        raise CalculationError("; ".join(f"bond {label}: {reason}" for label, reason in failed))
+    return ScanResult(
+        name=molecule.name, smiles=molecule.smiles, mol=molecule.mol, symbols=tuple(molecule.symbols),
+        charge=molecule.charge, unpaired_electrons=molecule.unpaired_electrons,
+        method=engine.method, engine=engine.name, caution=engine.caution, program=f"torsionscan {__version__}",
+        settings=settings,
+        start_energy_hartree=energy, start_coords_bohr=coords,
+        start_gradient_evaluations=start_evaluations, bonds=tuple(scans), failed_bonds=tuple(failed),
+    )

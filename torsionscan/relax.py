@@ -1,0 +1,43 @@
+"""Geometry optimisations of one molecule with one engine: the bridge between the optimiser,
+which knows only vectors, and the chemistry (engine, rigid-body invariance, model Hessian)."""
+
+import time
+
+import numpy as np
+
+from . import geometry
+from .errors import TimeLimitExceeded
+from .modelhessian import lindh_hessian
+from .optimize import minimize
+
+
+class Relaxer:
+    """Minimisations of one molecule with one engine (Bohr, Hartree), within an optional deadline."""
+
+    def __init__(self, engine, numbers, deadline=None):
+        self.engine = engine
+        self.numbers = numbers
+        self.deadline = deadline  # time.monotonic() value after which no new gradient is started
+
+    def _objective(self, x):
+        if self.deadline is not None and time.monotonic() > self.deadline:
+            raise TimeLimitExceeded(f"time limit reached after {self.engine.evaluations} gradient evaluations")
+        energy, gradient = self.engine.energy_and_gradient(x.reshape(-1, 3))
+        return energy, gradient.ravel()
+
+    def gradient(self, coords_bohr):
+        """Gradient (N, 3) in Hartree/Bohr at coords (N, 3) in Bohr, within the deadline."""
+        return self._objective(np.ravel(coords_bohr))[1].reshape(-1, 3)
+
+    @staticmethod
+    def _rigid(x):
+        return geometry.rigid_body_directions(x.reshape(-1, 3))
+
+    def relax(self, coords_bohr, convergence, hessian=None, constraints=()):
+        """Minimise from coords (N, 3) under the given constraints (optimize.Constraint objects)."""
+        if hessian is None:
+            hessian = lindh_hessian(self.numbers, coords_bohr)
+        return minimize(
+            self._objective, np.ravel(coords_bohr), hessian, constraints=list(constraints),
+            invariant_directions=self._rigid, convergence=convergence,
+        )

@@ -1,0 +1,67 @@
+"""Work on a finished result folder: read its summary.json, compute more (DFT re-scoring,
+torsion-term fits), attach the records to the result and rewrite the folder.
+
+The folder's summary.json holds the whole result (coordinates included), so nothing else of
+the folder is read; every file is written again by output.write_results.
+"""
+
+from dataclasses import replace
+from pathlib import Path
+
+from .output import summary, write_results
+from .threads import usable_cores
+from .errors import InputError
+from .forcefield import fit_torsion
+from .mm import read_mm_energies
+from .records import FitOptions
+from .rescore import parse_level, rescore_result
+
+
+def read_result(folder):
+    """The ScanResult of a scan's result folder (its summary.json); one-line InputError otherwise."""
+    folder = Path(folder)
+    path = folder / "summary.json"
+    if not path.is_file():
+        raise InputError(f"{folder} has no summary.json; give the result folder of a scan")
+    return summary.read_summary_file(path)
+
+
+def rescore_folder(folder, level_text, threads=None):
+    """Re-score every bond of a result folder at a DFT level (threads: default all usable cores);
+    rewrites the folder and returns the updated ScanResult."""
+    level = parse_level(level_text)
+    result = rescore_result(read_result(folder), level, threads or usable_cores())
+    write_results(result, folder)
+    return result
+
+
+def fit_folder(folder, bond=None, options=None, mm_energies_path=None, quantum="gfn"):
+    """Fit torsion terms for the bond(s) of a result folder, attach each as the bond's torsion_fit
+    and rewrite the folder (the fit files included); returns {bond label: TorsionFit}.
+
+    Without mm_energies_path every scanned bond (or only `bond`, "j-k") is fitted against MMFF94;
+    a table of MM energies (mm.read_mm_energies) belongs to one bond, named by `bond` when the
+    folder holds several.
+    """
+    result = read_result(folder)
+    if bond:
+        labels = [result.bond(bond).label]
+    else:
+        labels = [b.label for b in result.bonds]
+        if not labels:
+            raise InputError(f"{folder} holds no scanned bond; nothing to fit")
+        if mm_energies_path and len(labels) > 1:
+            raise InputError(f"{folder} holds bonds {', '.join(labels)}; "
+                             "say which one the MM energies belong to with --bond")
+    source = None if mm_energies_path is None else f"user-supplied ({Path(mm_energies_path).name})"
+    fits = {}
+    for label in labels:
+        scanned = result.bond(label)
+        energies = None
+        if mm_energies_path is not None:
+            energies = read_mm_energies(mm_energies_path, len(scanned.relaxed_points))
+        fits[label] = fit_torsion(result, scanned, options or FitOptions(), energies, source, quantum)
+    bonds = tuple(replace(b, torsion_fit=fits[b.label]) if b.label in fits else b for b in result.bonds)
+    result = replace(result, bonds=bonds)
+    write_results(result, folder)
+    return fits
