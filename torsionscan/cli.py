@@ -107,14 +107,14 @@ def _minima_text(analysis):
                       for m in analysis.minima)
 
 
-def _barrier_lines(bond):
+def _barrier_lines(analysis, symmetric):
     """One line per barrier; a symmetric profile repeats every barrier as its mirror image: shown once."""
     from .units import KCAL_KJ
 
     lines, shown = [], set()
-    for b in bond.profile.barriers:
+    for b in analysis.barriers:
         key = tuple(round(abs(x), 1) for x in (b.from_minimum_deg, b.over_maximum_deg, b.to_minimum_deg))
-        if bond.symmetric and key in shown:
+        if symmetric and key in shown:
             continue
         shown.add(key)
         flag = "" if b.converged else "  [refinement not converged]"
@@ -143,6 +143,9 @@ def _population_lines(analysis):
             line += f"; from free energies of the minima: s-cis {100 * rrho.s_cis:.1f}%"
             line += "  [the two estimates disagree]" if populations_disagree(p, rrho) else ""
         lines.append(line)
+    if not analysis.populations:  # only stationary points known: the free-energy estimate alone
+        lines += [f"  {p.temperature_k:g} K: from free energies of the minima: s-cis {100 * p.s_cis:.1f}%, "
+                  f"s-trans {100 * p.s_trans:.1f}%" for p in analysis.rrho_populations]
     return lines
 
 
@@ -178,12 +181,13 @@ def format_summary(result, out_dir):
         kind = "conjugated" if bond.conjugated else "chosen"
         lines.append(f"dihedral {atoms} (bond {bond.label}, {kind}; 0° = s-cis, 180° = s-trans)")
         lines.append(f"  minima (kcal/mol):   {_minima_text(bond.profile)}")
-        lines += _barrier_lines(bond)
+        lines += _barrier_lines(bond.profile, bond.symmetric)
         lines += _population_lines(bond.profile)
         lines += _vibration_lines(bond.profile)
         lines += _fit_lines(bond)
     for bond in result.bonds:
         lines += _rescored_lines(result, bond)
+        lines += refined_lines(result, bond)
     for label, reason in result.failed_bonds:
         lines.append(f"bond {label} FAILED: {reason}")
     lines.append(f"files: {out_dir}/")
@@ -204,6 +208,29 @@ def _rescored_lines(result, bond):
                      f"{100 * p.scis_window:.2f}%")
     lines.append(f"  difference to {result.method}: RMS {verdict.rms_kcal_mol:.2f}, max {verdict.max_kcal_mol:.2f} kcal/mol"
                  + (f"  WARNING: {verdict.warning}" if verdict.warning else ""))
+    return lines
+
+
+def refined_lines(result, bond):
+    """Terminal lines of a bond's refined profile (re-optimised at a higher level)."""
+    refined = bond.refined
+    if refined is None:
+        return []
+    analysis = refined.analysis
+    what = "every grid point" if refined.points_mode == "all" else "the stationary points"
+    lines = [f"bond {bond.label} refined at {refined.level} ({what} re-optimised, dihedral held; "
+             f"{refined.gradient_evaluations} gradients, {refined.wall_time_s:.0f} s)",
+             f"  minima (kcal/mol):   {_minima_text(analysis)}"]
+    lines += _barrier_lines(analysis, bond.symmetric)
+    lines += _population_lines(analysis)
+    for r in analysis.readiness:
+        lines.append(f"  diene at {r.temperature_k:g} K: planar s-cis costs ΔG {r.delta_g_kcal_mol:.2f} "
+                     f"(ΔE {r.delta_e_kcal_mol:.2f}) kcal/mol")
+    if refined.disagreement is not None:
+        verdict = refined.disagreement
+        lines.append(f"  difference to {result.method} at the same angles: RMS {verdict.rms_kcal_mol:.2f}, "
+                     f"max {verdict.max_kcal_mol:.2f} kcal/mol" + (f"  WARNING: {verdict.warning}" if verdict.warning else ""))
+    lines.append(f"  free energies: {refined.thermal_note}")
     return lines
 
 

@@ -59,7 +59,7 @@ def _failed_point(target_deg, coords, evaluations, reason):
     )
 
 
-class _BondScanner:
+class BondScanner:
     """Carries the state of one bond's scan (visits with their Hessians) between its stages."""
 
     def __init__(self, molecule, bond, relaxer, settings):
@@ -91,7 +91,6 @@ class _BondScanner:
         return self.relaxer.relax(turned, convergence, turned_hessian, constraints)
 
     def _visit(self, index, coords, hessian):
-        key = self.coordinate.canonical(index)
         angle = float(wrap_deg(self.coordinate.angles_deg(index)[0]))
         evaluations_before = self.relaxer.engine.evaluations
         try:
@@ -102,10 +101,10 @@ class _BondScanner:
                 point = replace(point, central_bond_order=order, homo_lumo_gap_ev=gap)
         except CalculationError as error:
             used = self.relaxer.engine.evaluations - evaluations_before
-            self.visits.setdefault(key, []).append((_failed_point(angle, coords, used, str(error)), hessian))
+            self.record_visit(index, _failed_point(angle, coords, used, str(error)), hessian)
             log.warning("dihedral %s: point %.1f deg failed: %s", self.bond.label, angle, error)
             return coords, hessian
-        self.visits.setdefault(key, []).append((point, result.hessian))
+        self.record_visit(index, point, result.hessian)
         return point.coords_bohr, result.hessian
 
     def sweep(self, start_coords, start_hessian):
@@ -143,6 +142,28 @@ class _BondScanner:
                         coords_bohr=mirror(point.coords_bohr), mirrored=True,
                     ), mirror_hessian(hessian))
         return sorted(points.values(), key=lambda item: display_angle(item[0].angle_deg))
+
+    def analyse(self):
+        """(circle of (point, hessian), points by angle, ProfileAnalysis, hysteresis) of the visits made:
+        the profile fitted and its minima and maxima refined with this scanner's engine."""
+        chosen, hysteresis = self.chosen_points()
+        circle = self.full_circle(chosen)
+        good = [p for p, _ in circle if p.converged]
+        if len(good) < 5:
+            raise CalculationError(f"dihedral {self.bond.label}: only {len(good)} scan points converged; "
+                                   "try another --engine or check the structure")
+        profile = analyse_profile(
+            [p.angle_deg for p in good], [p.energy_hartree for p in good], self.symmetric,
+            self.settings.temperatures_k, self.settings.scis_window_deg,
+            refine=lambda stationary, basin: self.refine(circle, stationary, basin),
+        )
+        points = tuple(sorted((replace(p, angle_deg=display_angle(p.angle_deg)) for p, _ in circle),
+                              key=lambda p: p.angle_deg))
+        return circle, points, profile, tuple(hysteresis)
+
+    def record_visit(self, index, point, hessian):
+        """Add a point computed elsewhere (a refinement) as a visit of grid point index."""
+        self.visits.setdefault(self.coordinate.canonical(index), []).append((point, hessian))
 
     def nearest(self, circle, angle_deg):
         """The usable circle entry (point, hessian) nearest to angle_deg."""
@@ -196,23 +217,12 @@ def scan_bond(molecule, bond, relaxer, start, settings):
     """Relaxed scan of one dihedral from the start minimum `start` = (coords, energy, hessian)."""
     began = time.perf_counter()
     evaluations_before = relaxer.engine.evaluations
-    scanner = _BondScanner(molecule, bond, relaxer, settings)
+    scanner = BondScanner(molecule, bond, relaxer, settings)
     scanner.sweep(start[0], start[2])
-    chosen, hysteresis = scanner.chosen_points()
-    circle = scanner.full_circle(chosen)
-    good = [p for p, _ in circle if p.converged]
-    if len(good) < 5:
-        raise CalculationError(
-            f"dihedral {bond.label}: only {len(good)} scan points converged; try another --engine or check the structure"
-        )
-    profile = analyse_profile(
-        [p.angle_deg for p in good], [p.energy_hartree for p in good], scanner.symmetric, settings.temperatures_k,
-        settings.scis_window_deg, refine=lambda stationary, basin: scanner.refine(circle, stationary, basin),
-    )
-    points = tuple(replace(p, angle_deg=display_angle(p.angle_deg)) for p, _ in circle)
+    circle, points, profile, hysteresis = scanner.analyse()
     bond_scan = BondScan(
         dihedral_atoms=bond.atoms, conjugated=bond.conjugated, symmetric=scanner.symmetric,
-        points=tuple(sorted(points, key=lambda p: p.angle_deg)), profile=profile, hysteresis=tuple(hysteresis),
+        points=points, profile=profile, hysteresis=hysteresis,
         hysteresis_threshold_kcal_mol=settings.hysteresis_kcal_mol,
         gradient_evaluations_total=relaxer.engine.evaluations - evaluations_before,
         wall_time_s=time.perf_counter() - began,

@@ -187,7 +187,7 @@ class ProfileAnalysis:
     """
 
     reference_energy_hartree: float  # zero of all relative energies: the lowest energy found
-    fit: FourierFit  # relative energies, kcal/mol
+    fit: FourierFit | None  # relative energies, kcal/mol; None when only stationary points are known
     minima: tuple[StationaryRecord, ...]
     maxima: tuple[StationaryRecord, ...]
     barriers: tuple[Barrier, ...]
@@ -241,6 +241,27 @@ class RescoredProfile:
     analysis: ProfileAnalysis  # extrema interpolated on the fit (no structures)
     disagreement: MethodDisagreement
     wall_time_s: float
+
+
+@dataclass(frozen=True)
+class RefinedProfile:
+    """The scan's structures re-optimised at a higher level with the dihedral held exactly.
+
+    points_mode "all": every computed grid point re-optimised (mirror images added for symmetric
+    profiles) and analysed like the scan, minima and barrier tops refined off-grid at this level;
+    "stationary": only the scan's minima, barrier tops and (dienes) planar s-cis structure
+    re-optimised: the analysis then has no fit and no integrated populations.
+    """
+
+    level: str
+    level_reference: str
+    points_mode: str
+    points: tuple[ScanPoint, ...]  # "all": the re-optimised grid points by angle; "stationary": none
+    analysis: ProfileAnalysis
+    disagreement: MethodDisagreement | None  # "all": against the scan's profile at the same angles
+    gradient_evaluations: int
+    wall_time_s: float
+    thermal_note: str  # which thermal corrections the free energies use
 
 
 @dataclass(frozen=True)
@@ -308,6 +329,7 @@ class BondScan:
     frequency_gradient_evaluations: int = 0  # spent on Hessians and the planar s-cis structure
     frequency_wall_time_s: float = 0.0
     rescored: RescoredProfile | None = None
+    refined: RefinedProfile | None = None
     torsion_fit: TorsionFit | None = None
 
     @property

@@ -19,6 +19,7 @@ _SCIS_SHADE = "#dfe9f5"
 _STRANS_SHADE = "#f6eadb"
 _WINDOW_SHADE = "#b9d0ea"
 _RESCORED = "#d95f02"
+_REFINED = "#1b9e77"
 
 
 def _dihedral_text(result, bond):
@@ -69,6 +70,8 @@ def profile_figure(result, bond, title=None):
     top = max(float(series.value(dense).max()), 1.0)
     if bond.rescored is not None:
         top = max(top, _rescored_overlay(ax, bond, dense))
+    if bond.refined is not None:
+        top = max(top, _refined_overlay(ax, bond.refined, dense))
     for records, marker, colour, prefix, offset in (
         (analysis.minima, "v", "#2a7f3f", "min ", -26), (analysis.maxima, "^", "#b23a2e", "", 8)
     ):
@@ -123,6 +126,28 @@ def _rescored_overlay(ax, bond, dense):
         ax.text(0.5, 0.97, "methods disagree: " + warning.split(":")[0], transform=ax.transAxes, ha="center",
                 va="top", fontsize=7, color="#b23a2e", wrap=True)
     return float(values.max())
+
+
+def _refined_overlay(ax, refined, dense):
+    """The refined profile over the scan's: its fit and re-optimised points ("all"), or its
+    re-optimised stationary points ("stationary"); returns the highest value drawn (kcal/mol)."""
+    analysis = refined.analysis
+    drawn = [0.0]
+    if analysis.fit is not None:
+        values = analysis.fit.series.value(dense)
+        ax.plot(dense, values, "-.", color=_REFINED, lw=1.4, label=f"refined fit: {refined.level}")
+        drawn.append(float(values.max()))
+    shown = [(p.angle_deg, analysis.relative_kcal_mol(p.energy_hartree)) for p in refined.points]
+    if not shown:
+        shown = [(m.angle_deg, analysis.relative_kcal_mol(m.energy_hartree)) for m in analysis.minima + analysis.maxima]
+        if analysis.planar_scis is not None:
+            shown.append((0.0, analysis.relative_kcal_mol(analysis.planar_scis.energy_hartree)))
+    shown = [(x, e) for x, e in shown if math.isfinite(e)]
+    if shown:
+        ax.plot(*zip(*shown), "s", color=_REFINED, ms=4, ls="none",
+                label="re-optimised points" if refined.points else "re-optimised stationary points")
+        drawn.append(max(e for _, e in shown))
+    return max(drawn)
 
 
 def _conjugation_panel(ax, bond):

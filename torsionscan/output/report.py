@@ -39,7 +39,13 @@ def table_columns(temperatures_k, extra_columns):
     columns += ["fit_rmse_kcal_mol", "fit_target_met", "hysteresis", "rescore_level", "rescored_global_min_deg",
                 "rescored_barrier_to_other_region_kcal_mol"]
     columns += [f"rescored_s_cis_{_temperature_key(t)}" for t in temperatures_k]
-    columns += ["method_disagreement_max_kcal_mol", "method_disagreement_warning", "compound_wall_time_s"]
+    columns += ["method_disagreement_max_kcal_mol", "method_disagreement_warning", "refine_level", "refine_points",
+                "refined_global_min_deg", "refined_scis_min_deg", "refined_scis_min_rel_kcal_mol",
+                "refined_barrier_to_other_region_kcal_mol"]
+    for t in temperatures_k:
+        key = _temperature_key(t)
+        columns += [f"refined_s_cis_{key}", f"refined_s_cis_rrho_{key}", f"refined_dG_to_planar_scis_{key}_kcal_mol"]
+    columns += ["refined_disagreement_max_kcal_mol", "refined_disagreement_warning", "compound_wall_time_s"]
     return columns + [c for c in extra_columns if c not in columns]
 
 
@@ -93,6 +99,31 @@ def bond_row(bond):
                     "method_disagreement_warning": rescored.disagreement.warning or ""})
         for p in rescored.analysis.populations:
             row[f"rescored_s_cis_{_temperature_key(p.temperature_k)}"] = p.s_cis
+    if bond.refined is not None:
+        row.update(_refined_row(bond.refined))
+    return row
+
+
+def _refined_row(refined):
+    """The table values of a refined profile (RefinedProfile)."""
+    analysis = refined.analysis
+    global_min, scis_min, barrier = _extremes(analysis)
+    scis = analysis.lowest_minimum("s-cis")
+    row = {"refine_level": refined.level, "refine_points": refined.points_mode, "refined_global_min_deg": global_min,
+           "refined_scis_min_deg": scis_min,
+           "refined_scis_min_rel_kcal_mol": None if scis is None else _rounded(
+               analysis.relative_kcal_mol(scis.energy_hartree), _ENERGY_DIGITS),
+           "refined_barrier_to_other_region_kcal_mol": barrier}
+    for p in analysis.populations:
+        row[f"refined_s_cis_{_temperature_key(p.temperature_k)}"] = p.s_cis
+    for p in analysis.rrho_populations:
+        row[f"refined_s_cis_rrho_{_temperature_key(p.temperature_k)}"] = p.s_cis
+    for r in analysis.readiness:
+        row[f"refined_dG_to_planar_scis_{_temperature_key(r.temperature_k)}_kcal_mol"] = _rounded(
+            r.delta_g_kcal_mol, _DELTA_G_DIGITS)
+    if refined.disagreement is not None:
+        row["refined_disagreement_max_kcal_mol"] = _rounded(refined.disagreement.max_kcal_mol, _BARRIER_DIGITS)
+        row["refined_disagreement_warning"] = refined.disagreement.warning or ""
     return row
 
 

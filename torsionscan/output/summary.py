@@ -17,10 +17,10 @@ from ..units import KCAL_KJ
 # reported as a disagreement of the two estimates
 POPULATION_DISAGREEMENT = 0.1
 
-# columns of the profile table, in order; the last one only when the bond was re-scored
+# columns of the profile table, in order; the last two only when the bond was re-scored / refined
 POINT_KEYS = ("angle_deg", "measured_angle_deg", "energy_rel_kcal_mol", "energy_rel_kj_mol", "fit_kcal_mol",
               "gradient_evaluations", "converged", "mirrored", "central_bond_order", "homo_lumo_gap_ev",
-              "failure", "energy_rescored_rel_kcal_mol")
+              "failure", "energy_rescored_rel_kcal_mol", "energy_refined_rel_kcal_mol")
 _DIGITS = 5  # decimals of the energies, angles, bond orders and gaps in the table
 
 
@@ -78,6 +78,9 @@ def profile_rows(bond):
         level = bond.rescored
         rescored = {id(p): level.analysis.relative_kcal_mol(level.energies_hartree[frame])
                     for p, frame in bond.points_with_frames()}
+    refined = {}
+    if bond.refined is not None and bond.refined.points:
+        refined = {r.angle_deg: bond.refined.analysis.relative_kcal_mol(r.energy_hartree) for r in bond.refined.points}
     rows = []
     for p in bond.points:
         kcal = analysis.relative_kcal_mol(p.energy_hartree)
@@ -91,13 +94,17 @@ def profile_rows(bond):
         }
         if bond.rescored is not None:
             row["energy_rescored_rel_kcal_mol"] = _cell(rescored.get(id(p), math.nan))
+        if refined:
+            row["energy_refined_rel_kcal_mol"] = _cell(refined.get(p.angle_deg, math.nan))
         rows.append(row)
     return rows
 
 
 def profile_columns(bond):
-    """The column names of a bond's profile table."""
-    return POINT_KEYS if bond.rescored is not None else POINT_KEYS[:-1]
+    """The column names of a bond's profile table (the re-scored and refined energies where present)."""
+    optional = {"energy_rescored_rel_kcal_mol": bond.rescored is not None,
+                "energy_refined_rel_kcal_mol": bond.refined is not None and bool(bond.refined.points)}
+    return tuple(key for key in POINT_KEYS if optional.get(key, True))
 
 
 def write_profile_table(bond, path):

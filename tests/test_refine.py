@@ -1,0 +1,104 @@
+"""Refinement at a second level, on model potentials: the refined profile is the second model's
+exactly, whichever points are refined and however many processes do it."""
+
+import functools
+
+import numpy as np
+import pytest
+
+import torsionscan
+from torsionscan.engines.model import ModelEngine
+from torsionscan.errors import InputError
+from torsionscan.molecule import find_conjugated_bonds, load_molecule
+from torsionscan.profile import FourierSeries
+from torsionscan.refine import refine_result
+
+SCAN_LEVEL = FourierSeries(0.0, (1.0, -1.5, 1.2), (0.0, 0.0, 0.0))
+HIGHER_LEVEL = FourierSeries(0.0, (1.4, -1.2, 1.0), (0.0, 0.0, 0.0))  # deeper gauche wells, other barriers
+
+
+def _dense(series, kind):
+    grid = np.arange(-180.0, 180.0, 0.001)
+    values = series.value(grid)
+    before, after = np.roll(values, 1), np.roll(values, -1)
+    mask = (values < before) & (values < after) if kind == "minimum" else (values > before) & (values > after)
+    return sorted(zip(grid[mask], values[mask] - values.min()))
+
+
+@pytest.fixture(scope="module")
+def scanned():
+    molecule = load_molecule("C=CC=C")
+    atoms = find_conjugated_bonds(molecule)[0].atoms
+    result = torsionscan.scan("C=CC=C", engine=ModelEngine(molecule.mol, [(atoms, SCAN_LEVEL)]),
+                              settings=torsionscan.ScanSettings(conformers=1))
+    return result, functools.partial(ModelEngine, molecule.mol, [(atoms, HIGHER_LEVEL)])
+
+
+@pytest.mark.parametrize("processes", [1, 2])
+def test_every_point_refined_gives_the_higher_level_profile(scanned, processes):
+    result, factory = scanned
+    refined = refine_result(result, factory, "second model", processes=processes).bonds[0].refined
+    analysis = refined.analysis
+    for kind, records in (("minimum", analysis.minima), ("maximum", analysis.maxima)):
+        expected = _dense(HIGHER_LEVEL, kind)
+        found = sorted((m.angle_deg if m.angle_deg < 180 else -180.0, analysis.relative_kcal_mol(m.energy_hartree))
+                       for m in records)
+        assert len(found) == len(expected)
+        for (a, e), (b, f) in zip(expected, found):
+            # the refinement threshold (2e-5 Hartree/Bohr on any coordinate) leaves up to ~0.1 deg
+            # and ~2e-4 kcal/mol on this soft gauche well
+            assert abs((a - b + 180) % 360 - 180) < 0.2 and e == pytest.approx(f, abs=1e-3)
+    assert refined.points_mode == "all" and len(refined.points) == len(result.bonds[0].points)
+    assert all(p.converged for p in refined.points)
+    # the disagreement is the two models' difference at the grid angles after the best constant shift
+    angles = np.array([p.angle_deg for p in result.bonds[0].points])
+    difference = HIGHER_LEVEL.value(angles) - SCAN_LEVEL.value(angles)
+    assert refined.disagreement.max_kcal_mol == pytest.approx(np.abs(difference - difference.mean()).max(), abs=1e-4)
+    assert refined.disagreement.warning is None  # below 1 kcal/mol, same lowest conformer, same minima
+    # free energies with the scan's thermal corrections carried over, and diene readiness
+    assert len(analysis.rrho_populations) == 1 and analysis.readiness
+    assert "carried over" in refined.thermal_note
+
+
+def test_only_stationary_points_refined(scanned):
+    result, factory = scanned
+    refined = refine_result(result, factory, "second model", points_mode="stationary", processes=2).bonds[0].refined
+    analysis = refined.analysis
+    assert analysis.fit is None and analysis.populations == () and refined.points == ()
+    minima = sorted(analysis.relative_kcal_mol(m.energy_hartree) for m in analysis.minima)
+    assert minima == pytest.approx(sorted(e for _, e in _dense(HIGHER_LEVEL, "minimum")), abs=1e-3)
+    assert analysis.planar_scis.angle_deg == 0.0
+    assert analysis.relative_kcal_mol(analysis.planar_scis.energy_hartree) == pytest.approx(
+        HIGHER_LEVEL.value(0.0) - min(HIGHER_LEVEL.value(np.arange(-180, 180, 0.001))), abs=1e-5)
+    assert analysis.barriers and all(b.height_kcal_mol > 0 for b in analysis.barriers)
+
+
+def test_an_unknown_point_mode_is_refused(scanned):
+    result, factory = scanned
+    with pytest.raises(InputError, match="--refine-points"):
+        refine_result(result, factory, "x", points_mode="some")
+
+
+def test_a_refined_result_is_written_drawn_and_reported(scanned, tmp_path):
+    import csv
+    import json
+
+    from torsionscan.cli import format_summary
+    from torsionscan.output import write_results
+    from torsionscan.output.report import bond_row
+    from torsionscan.records import ScanResult
+
+    result, factory = scanned
+    for mode in ("all", "stationary"):
+        refined = refine_result(result, factory, "second model", points_mode=mode)
+        folder = write_results(refined, tmp_path / mode)
+        again = ScanResult.from_dict(json.loads((folder / "summary.json").read_text()))
+        assert again.to_dict() == refined.to_dict()
+        rows = list(csv.DictReader((folder / "bond_2-3_profile.csv").open()))
+        assert ("energy_refined_rel_kcal_mol" in rows[0]) == (mode == "all")
+        assert (folder / "bond_2-3_profile.png").stat().st_size > 10_000
+        row = bond_row(refined.bonds[0])
+        assert row["refine_level"] == "second model" and row["refine_points"] == mode
+        assert row["refined_global_min_deg"] == pytest.approx(180.0, abs=0.5)
+        text = format_summary(refined, folder)
+        assert "refined at second model" in text and "carried over" in text
