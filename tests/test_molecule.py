@@ -1,5 +1,7 @@
 """Reading inputs, finding conjugated single bonds, the dihedral atom rule, bad input."""
 
+from fractions import Fraction
+
 import numpy as np
 import pytest
 from rdkit import Chem
@@ -7,7 +9,8 @@ from rdkit.Chem import AllChem
 
 from torsionscan.errors import InputError
 from torsionscan.molecule import (
-    find_conjugated_bonds, load_molecule, select_bond, side_atoms, starting_structures,
+    find_conjugated_bonds, load_molecule, pauling_bond_orders, select_bond, side_atoms, starting_structures,
+    torsion_bond,
 )
 
 
@@ -37,12 +40,98 @@ def test_outer_atoms_are_pi_partners_so_zero_is_s_cis():
 
 
 def test_aryl_outer_atom_rule_prefers_heteroatom_then_substituted_ortho():
-    # 2-(2-tolyl)pyridine: ring N on the pyridine side, the methyl-bearing carbon on the tolyl side
-    molecule = load_molecule("Cc1ccccc1-c1ccccn1")
-    i, j, k, l = find_conjugated_bonds(molecule)[0].atoms
-    symbols = molecule.symbols
-    assert symbols[l] == "N"
-    assert any(n.GetIdx() == 0 for n in molecule.mol.GetAtomWithIdx(i).GetNeighbors())
+    # 2-(2-tolyl)pyridine. The former rule ranked every aromatic neighbour and broke ties by the
+    # lower atom number; the present rule takes pi partners in some Kekulé structure (both ortho
+    # atoms on each side here), then the higher atomic number (ring N on the pyridine side), the
+    # larger Pauling bond order (1/2 for all four here), more heavy-atom neighbours (the
+    # methyl-bearing carbon on the tolyl side), so the answer is the same in both atom orders.
+    for smiles in ("Cc1ccccc1-c1ccccn1", "n1ccccc1-c1ccccc1C"):
+        molecule = load_molecule(smiles)
+        (bond,) = find_conjugated_bonds(molecule)
+        i, j, k, l = bond.atoms
+        symbols = molecule.symbols
+        outer = {symbols[i], symbols[l]}
+        assert outer == {"C", "N"}
+        ring_carbon = i if symbols[i] == "C" else l
+        neighbours = molecule.mol.GetAtomWithIdx(ring_carbon).GetNeighbors()
+        assert any(n.GetSymbol() == "C" and n.GetDegree() == 4 for n in neighbours)  # the methyl
+        assert not bond.symmetric_rotor_candidate
+
+
+def test_sigma_only_ring_atoms_are_never_the_reference():
+    # furan O, thiophene S: single-bonded to C2 in the only Kekulé structure
+    assert find_conjugated_bonds(load_molecule("C=Cc1ccco1"))[0].atoms == (0, 1, 2, 3)
+    assert find_conjugated_bonds(load_molecule("C=Cc1cccs1"))[0].atoms == (0, 1, 2, 3)
+    # 3-thienyl: C3=C2 is double, C3-C4 single in thiophene's Kekulé structure, whatever the order
+    assert find_conjugated_bonds(load_molecule("C=Cc1ccsc1"))[0].atoms == (0, 1, 2, 6)
+    assert find_conjugated_bonds(load_molecule("C=Cc1cscc1"))[0].atoms == (0, 1, 2, 3)
+    # naphthalen-2-yl: C1 (bond order 2/3) before C3 (1/3)
+    molecule = load_molecule("C=Cc1ccc2ccccc2c1")
+    (bond,) = find_conjugated_bonds(molecule)
+    assert bond.atoms == (0, 1, 2, 11)
+    assert bond.scis_meaning == "s-cis: C1=C2 syn to C3=C12"
+
+
+def test_s_cis_meaning_and_symmetric_rotor_flag():
+    cases = {
+        "C=CC=C": ("s-cis: C1=C2 syn to C3=C4", False),
+        "C=Cc1ccco1": ("s-cis: C1=C2 syn to C3=C4", False),
+        "C=Cc1ccccn1": ("s-cis: C1=C2 syn to C3=N8", False),
+        "C=Cc1ccsc1": ("s-cis: C1=C2 syn to C3=C7", False),
+        "C=Cc1ccccc1": ("s-cis: C1=C2 syn to C3=C4", True),
+        "c1ccccc1-c1ccccc1": ("s-cis: C1=C6 syn to C7=C8", True),
+        "C=Cn1cccc1": ("s-cis: C1=C2 syn to N3\u2013C4", True),  # pyrrole N has no pi partner
+    }
+    for smiles, (meaning, symmetric) in cases.items():
+        (bond,) = find_conjugated_bonds(load_molecule(smiles))
+        assert (bond.scis_meaning, bond.symmetric_rotor_candidate) == (meaning, symmetric), smiles
+
+
+def test_hand_chosen_bonds_keep_the_override_and_the_fallback():
+    molecule = load_molecule("C=Cc1ccco1")
+    # i-j-k-l given: taken as written, even the ring O
+    chosen = select_bond(molecule, "1-2-3-7")
+    assert chosen.atoms == (0, 1, 2, 6)
+    assert chosen.scis_meaning == "s-cis: C1=C2 syn to C3\u2013O7"
+    assert torsion_bond(molecule.mol, (0, 1, 2, 6)) == chosen
+    # an sp3-sp2 bond chosen by hand: the sp3 side has no pi partner, heaviest neighbour (C) wins
+    ethyl = load_molecule("CCC=C")
+    bond = select_bond(ethyl, "2-3")
+    assert bond.atoms == (0, 1, 2, 3) and not bond.conjugated
+    assert bond.scis_meaning == "s-cis: C1\u2013C2 syn to C3=C4"
+
+
+def _resonance_bond_orders(mol):
+    """Fraction of RDKit's enumerated Kekulé structures with each bond double (independent check)."""
+    structures = [s for s in Chem.ResonanceMolSupplier(mol, Chem.KEKULE_ALL) if s is not None]
+    orders = {}
+    for bond in mol.GetBonds():
+        if bond.GetIsAromatic() or bond.GetBondType() == Chem.BondType.DOUBLE:
+            key = tuple(sorted((bond.GetBeginAtomIdx(), bond.GetEndAtomIdx())))
+            double = sum(s.GetBondWithIdx(bond.GetIdx()).GetBondType() == Chem.BondType.DOUBLE for s in structures)
+            orders[key] = Fraction(double, len(structures))
+    return orders
+
+
+@pytest.mark.parametrize("smiles", [
+    "c1ccc2ccccc2c1", "c1ccc2ncccc2c1", "c1ccc2cccc2cc1", "c1ccc2c(c1)-c1ccccc1-2", "C1=CC=CC=CC=C1",
+    "O=C1C=CC(=O)C=C1", "c1ccc2cc3ccccc3cc2c1",
+    "c1ccc2c(c1)ccc1ccccc12", "c1cc2ccc3cccc4ccc(c1)c2c34", "C=Cc1ccco1", "c1ccc2[nH]ccc2c1", "O=c1cccc[nH]1",
+    "c1ccccc1-c1ccccc1", "C=Cc1ccc2ccccc2c1",
+])
+def test_pauling_bond_orders_match_rdkit_kekule_enumeration(smiles):
+    mol = Chem.AddHs(Chem.MolFromSmiles(smiles))
+    assert pauling_bond_orders(mol) == _resonance_bond_orders(mol)
+
+
+def test_naphthalene_pauling_bond_orders():
+    # closed form: naphthalene has three Kekulé structures; C1=C2 is double in two, C2=C3 in one
+    # (the classic Pauling bond orders 2/3 and 1/3)
+    orders = pauling_bond_orders(Chem.MolFromSmiles("c1ccc2ccccc2c1"))
+    # atoms 0..9 of the SMILES are C2, C3, C4, C4a, C5, C6, C7, C8, C8a, C1
+    assert orders[(0, 9)] == Fraction(2, 3)  # C1-C2
+    assert orders[(0, 1)] == Fraction(1, 3)  # C2-C3
+    assert orders[(3, 8)] == Fraction(1, 3)  # C4a-C8a
 
 
 def test_bond_selection_by_one_based_numbers():

@@ -3,17 +3,30 @@
 Atom indices inside the package are 0-based (RDKit's); the user interface shows and accepts
 1-based atom numbers. Coordinates from RDKit are in Angstrom.
 
-Dihedral atom rule. For a single bond j-k, the outer atom on each side is a neighbour joined to
-the bond atom by a double or aromatic bond (its pi partner), so 0 deg means the two pi bonds
-are eclipsed (s-cis) and 180 deg means they are anti (s-trans). Where a bond atom has several
-pi partners (an aryl ring: two ortho atoms) the outer atom is the one with the higher atomic
-number, then the one with more heavy-atom neighbours (a substituted ortho carbon), then the
-lower atom number. Bonds chosen by hand whose atoms have no pi partner fall back to the
-heaviest neighbour by the same ranking.
+Dihedral atom rule. For a single bond j-k the outer atom on each side is a pi-bond partner of
+the bond atom: a neighbour joined to it by a double or aromatic bond that is double in at
+least one Kekulé structure (pauling_bond_orders > 0), so 0 deg means the two pi bonds are
+eclipsed (s-cis) and 180 deg means they are anti (s-trans). A ring atom bonded only by sigma
+bonds in every Kekulé structure (furan O, thiophene S, pyrrole N) is never the reference: for
+2-vinylfuran the dihedral is C=C-C2=C3, the diene path through the ring. Where several partners remain they are ranked by
+1. higher atomic number (pyridin-2-yl: N before C3);
+2. larger Pauling bond order, the fraction of Kekulé structures in which the bond is double
+   (naphthalen-2-yl: C1, 2/3, before C3, 1/3);
+3. more heavy-atom neighbours (a substituted ortho carbon before an unsubstituted one);
+4. lower canonical atom rank (RDKit CanonicalRankAtoms with tie breaking).
+Every criterion is a property of the molecular graph, so the choice, mapped to canonical atoms,
+does not depend on how the input numbers its atoms. Where the candidates left for criterion 4
+are symmetry-equivalent (equal canonical rank without tie breaking: the ortho atoms of phenyl
+or of 2,6-xylyl) either choice describes the same chemistry and the rank only fixes which one is
+named. Where they are not (the two ortho carbons of 3-tolyl) the rank is a fixed convention;
+TorsionBond.scis_meaning states which fragment 0 deg refers to. A bond atom without any pi
+partner (a bond chosen by hand, pyrrole N) takes the best-ranked of its other neighbours by the
+same criteria. `--bond i-j-k-l` names all four atoms and overrides the rule.
 """
 
 import re
 from dataclasses import dataclass
+from fractions import Fraction
 from pathlib import Path
 
 import numpy as np
@@ -26,6 +39,7 @@ RDLogger.DisableLog("rdApp.*")
 
 _PI_BOND_TYPES = (Chem.BondType.DOUBLE, Chem.BondType.AROMATIC)
 _FILE_SUFFIXES = {".sdf": "sdf", ".sd": "sdf", ".mol": "sdf", ".xyz": "xyz"}
+_NUMBER_PROP = "_torsionscan_number"
 
 
 @dataclass(frozen=True)
@@ -61,10 +75,18 @@ class Molecule:
 
 @dataclass(frozen=True)
 class TorsionBond:
-    """A rotatable single bond j-k and its dihedral i-j-k-l (0-based atom indices)."""
+    """A rotatable single bond j-k and its dihedral i-j-k-l (0-based atom indices).
+
+    scis_meaning: which fragments 0 deg puts syn, e.g. "s-cis: C1=C2 syn to C3=C4" (1-based
+    numbers; "=" joins a pi partner, "–" a sigma-only neighbour). symmetric_rotor_candidate:
+    the two other neighbours of j (or of k) are topologically equivalent, so E(phi) =
+    E(180 deg - phi) is expected (phenyl, not 3-thienyl); a candidate, to be confirmed on the profile.
+    """
 
     atoms: tuple[int, int, int, int]
     conjugated: bool
+    scis_meaning: str = ""
+    symmetric_rotor_candidate: bool = False
 
     @property
     def label(self):
@@ -175,7 +197,8 @@ def load_molecule(source, *, name=None, charge=None, unpaired_electrons=0, recor
     )
 
 
-def _pi_partners(atom, exclude):
+def _pi_bonded_neighbours(atom, exclude):
+    """Neighbours joined to `atom` by a double or aromatic bond (other than atom `exclude`)."""
     return [
         bond.GetOtherAtom(atom)
         for bond in atom.GetBonds()
@@ -184,26 +207,125 @@ def _pi_partners(atom, exclude):
     ]
 
 
-def _rank(atom):
-    heavy = sum(1 for n in atom.GetNeighbors() if n.GetAtomicNum() > 1)
-    return (-atom.GetAtomicNum(), -heavy, atom.GetIdx())
+def _perfect_matchings(vertices, adjacency, memo):
+    """Number of perfect matchings of the graph induced on `vertices` (a frozenset)."""
+    if not vertices:
+        return 1
+    if vertices not in memo:
+        v = min(vertices, key=lambda x: (len(adjacency[x] & vertices), x))
+        rest = vertices - {v}
+        memo[vertices] = sum(_perfect_matchings(rest - {w}, adjacency, memo) for w in adjacency[v] & rest)
+    return memo[vertices]
 
 
-def _outer_atom(atom, exclude):
-    """The dihedral's outer atom on `atom`'s side (see the module docstring), or None."""
-    partners = _pi_partners(atom, exclude)
-    if not partners:
-        partners = [n for n in atom.GetNeighbors() if n.GetIdx() != exclude]
-    if not partners:
-        return None
-    return min(partners, key=_rank).GetIdx()
+def pauling_bond_orders(mol):
+    """Fraction of Kekulé structures in which each double or aromatic bond is double (exact Fractions).
+
+    Keys are sorted 0-based atom pairs. The Kekulé structures are the perfect matchings of the
+    atoms that carry exactly one double bond (in RDKit's Kekulé form) over the ring bonds between
+    them and the double bonds; an acyclic bond never changes (it would leave an odd fragment on
+    each side), nor does a cumulated double bond. Naphthalene C1-C2 2/3, C2-C3 1/3; the furan
+    C-O bond 0 (single in furan's only Kekulé structure); an isolated or acyclic C=C 1.
+    """
+    kekule = Chem.Mol(mol)
+    Chem.Kekulize(kekule, clearAromaticFlags=False)
+    doubles = [b for b in kekule.GetBonds() if b.GetBondType() == Chem.BondType.DOUBLE]
+    double_count = {}
+    for bond in doubles:
+        for atom in (bond.GetBeginAtomIdx(), bond.GetEndAtomIdx()):
+            double_count[atom] = double_count.get(atom, 0) + 1
+    matched = {atom for atom, count in double_count.items() if count == 1}
+    adjacency = {v: set() for v in matched}
+    for bond in kekule.GetBonds():
+        a, b = bond.GetBeginAtomIdx(), bond.GetEndAtomIdx()
+        if a in matched and b in matched and (bond.IsInRing() or bond.GetBondType() == Chem.BondType.DOUBLE) \
+                and bond.GetBondType() in (Chem.BondType.SINGLE, Chem.BondType.DOUBLE):
+            adjacency[a].add(b)
+            adjacency[b].add(a)
+    adjacency = {v: frozenset(n) for v, n in adjacency.items()}
+    components = {}
+    for start in sorted(matched):
+        if start not in components:
+            seen, todo = {start}, [start]
+            while todo:
+                for n in adjacency[todo.pop()] - seen:
+                    seen.add(n)
+                    todo.append(n)
+            components.update(dict.fromkeys(seen, frozenset(seen)))
+    memo = {}
+    orders = {}
+    for bond in mol.GetBonds():
+        if not (bond.GetIsAromatic() or bond.GetBondType() == Chem.BondType.DOUBLE):
+            continue
+        a, b = sorted((bond.GetBeginAtomIdx(), bond.GetEndAtomIdx()))
+        if a in matched and b in adjacency[a]:
+            system = components[a]
+            orders[(a, b)] = Fraction(
+                _perfect_matchings(system - {a, b}, adjacency, memo), _perfect_matchings(system, adjacency, memo))
+        else:  # a cumulated double bond stays double; a bond to a sigma-only ring atom stays single
+            orders[(a, b)] = Fraction(int(kekule.GetBondBetweenAtoms(a, b).GetBondType() == Chem.BondType.DOUBLE))
+    return orders
+
+
+class _ReferenceRule:
+    """The dihedral atom rule of the module docstring on one molecule (ranks and bond orders computed once)."""
+
+    def __init__(self, mol):
+        self.mol = mol
+        self.orders = pauling_bond_orders(mol)
+        self.ranks = list(Chem.CanonicalRankAtoms(mol, breakTies=True))
+        self.classes = list(Chem.CanonicalRankAtoms(mol, breakTies=False))
+
+    def order(self, a, b):
+        """Pauling bond order of a-b (0 for a sigma-only or absent pi bond)."""
+        return self.orders.get((min(a, b), max(a, b)), Fraction(0))
+
+    def _key(self, centre, atom):
+        heavy = sum(1 for n in atom.GetNeighbors() if n.GetAtomicNum() > 1)
+        return (-atom.GetAtomicNum(), -self.order(centre, atom.GetIdx()), -heavy, self.ranks[atom.GetIdx()])
+
+    def outer_atom(self, centre, exclude):
+        """The dihedral's outer atom on `centre`'s side of bond centre-exclude, or None (a terminal atom)."""
+        others = [n for n in self.mol.GetAtomWithIdx(centre).GetNeighbors() if n.GetIdx() != exclude]
+        partners = [n for n in others if self.order(centre, n.GetIdx()) > 0] or others
+        if not partners:
+            return None
+        return min(partners, key=lambda atom: self._key(centre, atom)).GetIdx()
+
+    def symmetric_side(self, centre, exclude):
+        """True if `centre` has exactly two other neighbours and they are topologically equivalent."""
+        others = [n.GetIdx() for n in self.mol.GetAtomWithIdx(centre).GetNeighbors() if n.GetIdx() != exclude]
+        return len(others) == 2 and self.classes[others[0]] == self.classes[others[1]]
+
+    def meaning(self, atoms):
+        """The s-cis text of dihedral atoms i-j-k-l (0-based), e.g. "s-cis: C1=C2 syn to C3=C4" (1-based)."""
+        i, j, k, l = atoms
+        name = [f"{a.GetSymbol()}{a.GetIdx() + 1}" for a in self.mol.GetAtoms()]
+        join = {True: "=", False: "\u2013"}
+        return (f"s-cis: {name[i]}{join[self.order(i, j) > 0]}{name[j]} syn to "
+                f"{name[k]}{join[self.order(k, l) > 0]}{name[l]}")
+
+    def torsion_bond(self, atoms):
+        i, j, k, l = atoms
+        return TorsionBond(
+            atoms=(i, j, k, l), conjugated=_is_conjugated_single(self.mol.GetBondBetweenAtoms(j, k)),
+            scis_meaning=self.meaning(atoms),
+            symmetric_rotor_candidate=self.symmetric_side(j, k) or self.symmetric_side(k, j),
+        )
+
+    def bond(self, j, k):
+        """The TorsionBond of bond j-k by the rule, or None if a bond atom has no other neighbour."""
+        i, l = self.outer_atom(j, k), self.outer_atom(k, j)
+        if i is None or l is None:
+            return None
+        return self.torsion_bond((i, j, k, l))
 
 
 def _is_conjugated_single(bond):
     if bond.GetBondType() != Chem.BondType.SINGLE or bond.IsInRing() or bond.GetIsAromatic():
         return False
     j, k = bond.GetBeginAtom(), bond.GetEndAtom()
-    return bool(_pi_partners(j, k.GetIdx())) and bool(_pi_partners(k, j.GetIdx()))
+    return bool(_pi_bonded_neighbours(j, k.GetIdx())) and bool(_pi_bonded_neighbours(k, j.GetIdx()))
 
 
 def is_diene_bond(mol, atoms):
@@ -214,22 +336,40 @@ def is_diene_bond(mol, atoms):
         and all(mol.GetAtomWithIdx(a).GetAtomicNum() == 6 for a in atoms)
 
 
-def _torsion_bond(mol, j, k):
-    i = _outer_atom(mol.GetAtomWithIdx(j), k)
-    l = _outer_atom(mol.GetAtomWithIdx(k), j)
-    if i is None or l is None:
-        return None
-    return TorsionBond((i, j, k, l), _is_conjugated_single(mol.GetBondBetweenAtoms(j, k)))
+def torsion_bond(mol, atoms):
+    """The TorsionBond (conjugation flag, s-cis meaning, symmetry candidate) of given 0-based dihedral atoms."""
+    return _ReferenceRule(mol).torsion_bond(tuple(int(a) for a in atoms))
+
+
+def numbered_smiles(mol):
+    """SMILES in which every heavy atom carries its 1-based atom number as atom map number.
+
+    mol: an RDKit molecule (with or without explicit hydrogens). Hydrogens are not written
+    (unless RDKit must keep one, which then carries its number too), so "[CH2:1]=[C:2]..." reads
+    off the numbers used by --bond and the reports. Atoms are written in atom order where the
+    graph allows (non-canonical SMILES).
+    """
+    numbered = Chem.Mol(mol)
+    for atom in numbered.GetAtoms():
+        atom.SetIntProp(_NUMBER_PROP, atom.GetIdx() + 1)
+        atom.SetAtomMapNum(0)
+    numbered = Chem.RemoveHs(numbered)
+    for atom in numbered.GetAtoms():
+        atom.SetAtomMapNum(atom.GetIntProp(_NUMBER_PROP))
+    return Chem.MolToSmiles(numbered, canonical=False)
 
 
 def find_conjugated_bonds(molecule):
-    """Every acyclic single bond whose two atoms each carry a double or aromatic bond."""
-    mol = molecule.mol
+    """Every acyclic single bond whose two atoms each carry a double or aromatic bond, as TorsionBonds.
+
+    Bonds are j < k by atom index; the outer atoms follow the rule of the module docstring.
+    """
+    rule = _ReferenceRule(molecule.mol)
     found = []
-    for bond in mol.GetBonds():
+    for bond in molecule.mol.GetBonds():
         if _is_conjugated_single(bond):
             j, k = sorted((bond.GetBeginAtomIdx(), bond.GetEndAtomIdx()))
-            found.append(_torsion_bond(mol, j, k))
+            found.append(rule.bond(j, k))
     return found
 
 
@@ -259,8 +399,8 @@ def select_bond(molecule, spec):
         i, l = atoms[0], atoms[3]
         if mol.GetBondBetweenAtoms(i, j) is None or mol.GetBondBetweenAtoms(k, l) is None:
             raise InputError(f"--bond {spec}: atoms must form a bonded chain i-j-k-l")
-        return TorsionBond((i, j, k, l), _is_conjugated_single(bond))
-    torsion = _torsion_bond(mol, j, k)
+        return _ReferenceRule(mol).torsion_bond((i, j, k, l))
+    torsion = _ReferenceRule(mol).bond(j, k)
     if torsion is None:
         raise InputError(f"--bond {spec}: a terminal atom has no other neighbour, so no dihedral is defined")
     return torsion
