@@ -102,3 +102,23 @@ def test_a_refined_result_is_written_drawn_and_reported(scanned, tmp_path):
         assert row["refined_global_min_deg"] == pytest.approx(180.0, abs=0.5)
         text = format_summary(refined, folder)
         assert "refined at second model" in text and "carried over" in text
+
+
+def test_reference_energies_are_added_at_the_refined_stationary_points(scanned, monkeypatch):
+    # the focal-point calculation itself is tested in test_reference.py; here: which structures get one
+    import torsionscan.refine as refine_module
+    from torsionscan.reference import ReferenceEnergy
+
+    def fake(job):  # energy = the number of the structure's first coordinate, to follow it through
+        symbols, coords, charge, threads = job
+        return ReferenceEnergy(float(coords[0, 0]), 0.0, 0.0, (0.0, 0.0), 0.0, 0.0)
+
+    monkeypatch.setattr(refine_module, "_reference_job", fake)
+    result, factory = scanned
+    refined = refine_module.add_reference(refine_result(result, factory, "second model", points_mode="stationary"))
+    profile = refined.bonds[0].refined
+    kinds = sorted(p.kind for p in profile.reference)
+    assert kinds == sorted([m.kind for m in profile.analysis.minima + profile.analysis.maxima] + ["planar s-cis"])
+    assert profile.reference_label.startswith("focal point")
+    with pytest.raises(InputError, match="needs a refined profile"):
+        refine_module.add_reference(result)

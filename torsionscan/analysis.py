@@ -135,3 +135,14 @@ def analyse_profile(angles_deg, energies_hartree, symmetric, temperatures_k, win
         reference_energy_hartree=reference, fit=fit, minima=minima, maxima=maxima,
         barriers=tuple(barriers_between(list(minima), list(maxima))), populations=populations,
     )
+
+
+SYMMETRIC_ROTOR_FLOOR_KCAL_MOL = 0.05  # smallest |E(phi) - E(180 - phi)| that breaks the rotor's symmetry
+
+
+def is_symmetric_rotor_profile(fit):
+    """Does the fitted profile satisfy E(phi) = E(180 deg - phi) within its own error (three times
+    the fit RMSE, at least SYMMETRIC_ROTOR_FLOOR_KCAL_MOL), as a ring with equivalent sides must?"""
+    angles = np.linspace(-180.0, 180.0, 721)
+    asymmetry = np.abs(fit.series.value(angles) - fit.series.value(180.0 - angles)).max()
+    return bool(asymmetry <= max(3.0 * fit.rmse_kcal_mol, SYMMETRIC_ROTOR_FLOOR_KCAL_MOL))

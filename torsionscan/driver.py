@@ -16,11 +16,11 @@ from dataclasses import replace
 import numpy as np
 
 from .version import __version__
-from .analysis import analyse_profile, display_angle, in_arc
+from .analysis import analyse_profile, display_angle, in_arc, is_symmetric_rotor_profile
 from .coordinate import DihedralConstraint, ScanCoordinate, mirror, mirror_hessian
 from .engines import CONJUGATION, make_engine
 from .errors import CalculationError, InputError
-from .freeenergy import add_free_energies
+from .freeenergy import add_free_energies, interconversion, torsion_as_rotor
 from .molecule import (
     find_conjugated_bonds, is_diene_bond, load_molecule, select_bond, side_atoms, starting_structures,
 )
@@ -236,12 +236,17 @@ def scan_bond(molecule, bond, relaxer, start, settings):
         try:
             bond_scan = replace(bond_scan, profile=add_free_energies(
                 bond_scan.profile, bond.atoms, bond_scan.symmetric, relaxer, masses, settings,
-                planar_start and (planar_start[0].coords_bohr, planar_start[1])))
+                planar_start and (planar_start[0].coords_bohr, planar_start[1]), scanner.coordinate.moving[0]))
         except (CalculationError, ValueError, np.linalg.LinAlgError) as error:
             log.warning("dihedral %s: frequencies failed (%s); free energies left out", bond.label, error)
         bond_scan = replace(bond_scan, frequency_gradient_evaluations=relaxer.engine.evaluations - scanned,
                             frequency_wall_time_s=time.perf_counter() - started)
-    return bond_scan
+    masses = [atom.GetMass() for atom in molecule.mol.GetAtoms()]
+    profile = torsion_as_rotor(bond_scan.profile, masses, bond.atoms, scanner.coordinate.moving[0],
+                               settings.temperatures_k, settings.scis_window_deg)
+    profile = replace(profile, interconversion=interconversion(profile, settings.temperatures_k))
+    return replace(bond_scan, profile=profile, scis_meaning=bond.scis_meaning,
+                   symmetric_rotor=bond.symmetric_rotor_candidate and is_symmetric_rotor_profile(profile.fit))
 
 
 def scan(source, *, bond=None, name=None, charge=None, unpaired_electrons=0, record=1, settings=None,

@@ -17,7 +17,11 @@ import numpy as np
 from . import geometry
 from .errors import CalculationError
 from .coordinate import DihedralConstraint
-from .records import Readiness, RrhoPopulations, StationaryRecord
+from .records import Interconversion, Readiness, RrhoPopulations, StationaryRecord
+from .rotor import (
+    BOLTZMANN_WINDOW_RT, conformer_free_energies, eyring_rate, half_life_s, reduced_moment_of_inertia, region_weights,
+    rotor_populations, torsional_levels, well_fundamentals, wigner_transmission,
+)
 from .thermo import is_s_cis
 from .rrho import conformer_populations, harmonic_frequencies, rrho_thermo
 from .units import HARTREE_KCAL_MOL, rt_kcal_mol
@@ -34,6 +38,7 @@ class Vibrations:
     imaginary_count: int
     imaginary_along_torsion: bool | None  # freezing the dihedral removes an imaginary mode; None if none
     gibbs_corrections_kcal_mol: tuple[float, ...]  # G - E_el per temperature (quasi-RRHO)
+    other_modes_gibbs_kcal_mol: tuple[float, ...]  # the same with the torsion projected out of the Hessian
 
 
 def finite_difference_hessian(gradient_of, coords_bohr, step_bohr=FD_STEP_BOHR, symmetrise=True):
@@ -52,40 +57,49 @@ def finite_difference_hessian(gradient_of, coords_bohr, step_bohr=FD_STEP_BOHR, 
     return 0.5 * (hessian + hessian.T) if symmetrise else hessian
 
 
-def analyse(gradient_of, masses_amu, coords_bohr, dihedral_atoms, temperatures_k, freeze_torsion=False):
+def analyse(gradient_of, masses_amu, coords_bohr, dihedral_atoms, temperatures_k, freeze_torsion=False,
+            moving_atoms=None):
     """Vibrations of one structure (gradient_of(coords) -> Hartree/Bohr); freeze_torsion projects the
-    dihedral out (a constrained point)."""
-    hessian = finite_difference_hessian(gradient_of, coords_bohr)
-    torsion = [geometry.dihedral_gradient(np.asarray(coords_bohr), *dihedral_atoms).ravel()]
-    frequencies, _ = harmonic_frequencies(hessian, masses_amu, coords_bohr, torsion if freeze_torsion else None)
+    dihedral out (a constrained point). The other-modes corrections leave out the internal rotation
+    of moving_atoms about the bond (the hindered rotor's own motion; the frozen dihedral if not given)."""
+    coords = np.asarray(coords_bohr, dtype=float).reshape(-1, 3)
+    hessian = finite_difference_hessian(gradient_of, coords)
+    torsion = [geometry.dihedral_gradient(coords, *dihedral_atoms).ravel()]
+    frequencies, _ = harmonic_frequencies(hessian, masses_amu, coords, torsion if freeze_torsion else None)
+    frozen = frequencies if freeze_torsion else harmonic_frequencies(hessian, masses_amu, coords, torsion)[0]
     imaginary = int(np.sum(frequencies < 0))
-    along = None
-    if imaginary and not freeze_torsion:
-        frozen, _ = harmonic_frequencies(hessian, masses_amu, coords_bohr, torsion)
-        along = int(np.sum(frozen < 0)) < imaginary
-    corrections = tuple(
-        rrho_thermo(frequencies, masses_amu, coords_bohr, t,
-                    quasi_harmonic_cutoff_cm1=QUASI_HARMONIC_CUTOFF_CM1).gibbs_correction_kcal_mol
-        for t in temperatures_k
-    )
-    return Vibrations(tuple(float(f) for f in frequencies), imaginary, along, corrections)
+    along = None if not imaginary or freeze_torsion else int(np.sum(frozen < 0)) < imaginary
+    others = frozen
+    if moving_atoms is not None:
+        # a motion d is removed as the constraint gradient M d (rrho.harmonic_frequencies)
+        motion = geometry.internal_rotation(coords, dihedral_atoms[1], dihedral_atoms[2], moving_atoms)
+        others = harmonic_frequencies(hessian, masses_amu, coords, [(np.asarray(masses_amu)[:, None] * motion).ravel()])[0]
+
+    def corrections(modes):
+        return tuple(rrho_thermo(modes, masses_amu, coords_bohr, t,
+                                 quasi_harmonic_cutoff_cm1=QUASI_HARMONIC_CUTOFF_CM1).gibbs_correction_kcal_mol
+                     for t in temperatures_k)
+
+    return Vibrations(tuple(float(f) for f in frequencies), imaginary, along, corrections(frequencies),
+                      corrections(others))
 
 
 def _with_vibrations(records, analysed):
     return tuple(
         replace(r, frequencies_cm1=v.frequencies_cm1, imaginary_count=v.imaginary_count,
-                imaginary_along_torsion=v.imaginary_along_torsion, gibbs_corrections_kcal_mol=v.gibbs_corrections_kcal_mol)
+                imaginary_along_torsion=v.imaginary_along_torsion, gibbs_corrections_kcal_mol=v.gibbs_corrections_kcal_mol,
+                other_modes_gibbs_kcal_mol=v.other_modes_gibbs_kcal_mol)
         for r, v in zip(records, analysed)
     )
 
 
-def _analyse_all(records, gradient_of, masses, atoms, temperatures, symmetric):
+def _analyse_all(records, gradient_of, masses, atoms, temperatures, symmetric, moving):
     """Vibrations of each record; a mirror-image record (symmetric profile) reuses its partner's."""
     done, results = {}, []
     for record in records:
         key = round(abs(record.angle_deg), 1) if symmetric else round(record.angle_deg, 1)
         if key not in done:
-            done[key] = analyse(gradient_of, masses, record.coords_bohr, atoms, temperatures)
+            done[key] = analyse(gradient_of, masses, record.coords_bohr, atoms, temperatures, moving_atoms=moving)
         results.append(done[key])
     return results
 
@@ -115,14 +129,15 @@ def readiness(minima, planar, temperatures_k):
     return tuple(records)
 
 
-def add_free_energies(profile, dihedral_atoms, symmetric, relaxer, masses_amu, settings, planar_scis_start=None):
+def add_free_energies(profile, dihedral_atoms, symmetric, relaxer, masses_amu, settings, planar_scis_start=None,
+                      moving_atoms=None):
     """The ProfileAnalysis with vibrations at its minima and maxima, RRHO populations and, when
     planar_scis_start (coords, hessian) is given (dienes), the planar s-cis record and readiness."""
     gradient_of, atoms, temperatures = relaxer.gradient, dihedral_atoms, settings.temperatures_k
     minima = _with_vibrations(profile.minima, _analyse_all(profile.minima, gradient_of, masses_amu, atoms,
-                                                           temperatures, symmetric))
+                                                           temperatures, symmetric, moving_atoms))
     maxima = _with_vibrations(profile.maxima, _analyse_all(profile.maxima, gradient_of, masses_amu, atoms,
-                                                           temperatures, symmetric))
+                                                           temperatures, symmetric, moving_atoms))
     update = dict(minima=minima, maxima=maxima, rrho_populations=rrho_populations(minima, temperatures))
     if planar_scis_start is not None and minima:
         coords, hessian = planar_scis_start
@@ -138,3 +153,80 @@ def add_free_energies(profile, dihedral_atoms, symmetric, relaxer, masses_amu, s
         )
         update.update(planar_scis=planar, readiness=readiness(minima, planar, temperatures))
     return replace(profile, **update)
+
+
+ROTOR_MOMENT = "projected"  # rotor.reduced_moment_of_inertia definition: the rigorous one (see README)
+
+
+def _region_minimum(minima, s_cis):
+    chosen = [m for m in minima if is_s_cis(m.angle_deg) == s_cis and m.other_modes_gibbs_kcal_mol]
+    return min(chosen, key=lambda m: m.energy_hartree, default=None)
+
+
+def torsion_as_rotor(profile, masses_amu, dihedral_atoms, moving_atoms, temperatures_k, window_deg):
+    """The ProfileAnalysis with the torsion treated as a 1-D quantum hindered rotor on its fit.
+
+    The reduced moment of inertia is taken at the global minimum (ROTOR_MOMENT); per temperature
+    the rotor's region populations, the torsional fundamental of every well and, when the minima
+    carry frequencies, the region free energies of rotor levels plus all other modes (harmonic /
+    quasi-harmonic, torsion projected out at each region's lowest minimum, ZPE included).
+    """
+    lowest = profile.lowest_minimum()
+    if profile.fit is None or lowest is None or lowest.coords_bohr is None:
+        return profile
+    _, j, k, _ = dihedral_atoms
+    inertia = reduced_moment_of_inertia(masses_amu, lowest.coords_bohr, j, k, moving_atoms, definition=ROTOR_MOMENT)
+    series = profile.fit.series
+    rotor = tuple(rotor_populations(series, inertia, t, window_deg) for t in temperatures_k)
+    free = ()
+    cis, trans = _region_minimum(profile.minima, True), _region_minimum(profile.minima, False)
+    if cis is not None and trans is not None:
+        free = []
+        for n, t in enumerate(temperatures_k):
+            levels, vectors = torsional_levels(series, inertia, window_kcal_mol=BOLTZMANN_WINDOW_RT * rt_kcal_mol(t))
+            free.append(conformer_free_energies(levels, region_weights(vectors), cis.other_modes_gibbs_kcal_mol[n],
+                                                trans.other_modes_gibbs_kcal_mol[n], t))
+        free = tuple(free)
+    return replace(profile, rotor_inertia_amu_bohr2=inertia, rotor=rotor, wells=well_fundamentals(series, inertia),
+                   free_energies=free)
+
+
+def _crossing(profile, from_cis):
+    """(minimum, barrier top) of the lowest way out of a region's lowest minimum into the other region."""
+    start = profile.lowest_minimum("s-cis" if from_cis else "s-trans")
+    if start is None:
+        return None
+    tops = {round(m.angle_deg, 6): m for m in profile.maxima}
+    ways = [b for b in profile.barriers if abs(b.from_minimum_deg - start.angle_deg) < 1e-3
+            and is_s_cis(b.to_minimum_deg) != from_cis and round(b.over_maximum_deg, 6) in tops]
+    if not ways:
+        return None
+    way = min(ways, key=lambda b: b.height_kcal_mol)
+    return start, tops[round(way.over_maximum_deg, 6)]
+
+
+def interconversion(profile, temperatures_k):
+    """Eyring rates (records.Interconversion per temperature) between the regions from free-energy
+    barriers G = E + (G - E)_quasi-RRHO (the top's imaginary mode left out), with the Wigner factor of
+    the top's imaginary frequency; () when the stationary points carry no frequencies."""
+    forward, backward = _crossing(profile, False), _crossing(profile, True)
+    if forward is None or backward is None:
+        return ()
+    if not all(r.gibbs_corrections_kcal_mol and r.frequencies_cm1 for pair in (forward, backward) for r in pair):
+        return ()
+    records = []
+    for n, t in enumerate(temperatures_k):
+        def barrier(pair):
+            start, top = pair
+            return ((top.energy_hartree - start.energy_hartree) * HARTREE_KCAL_MOL
+                    + top.gibbs_corrections_kcal_mol[n] - start.gibbs_corrections_kcal_mol[n])
+
+        def imaginary(pair):
+            lowest = pair[1].frequencies_cm1[0]
+            return -lowest if lowest < 0 else None
+
+        rates = [eyring_rate(barrier(pair), t, imaginary(pair)) for pair in (forward, backward)]
+        kappas = [wigner_transmission(imaginary(pair), t) if imaginary(pair) else 1.0 for pair in (forward, backward)]
+        records.append(Interconversion(t, barrier(forward), barrier(backward), rates[0], rates[1], kappas[0], kappas[1],
+                                       half_life_s(rates[0] + rates[1])))
+    return tuple(records)

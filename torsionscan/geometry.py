@@ -99,3 +99,14 @@ def orthonormal_rows(rows):
     q, r = np.linalg.qr(rows.T)
     keep = np.abs(np.diag(r)) > 1e-8 * max(1.0, np.abs(r).max())
     return q[:, keep].T
+
+
+def internal_rotation(coords, j, k, moving):
+    """(N, 3) displacement of a rigid turn of the `moving` atoms about the bond axis j->k by one
+    radian (to first order; Bohr per radian), zero on the other atoms."""
+    axis = coords[k] - coords[j]
+    axis = axis / np.linalg.norm(axis)
+    motion = np.zeros_like(coords)
+    moving = np.asarray(moving, dtype=int)
+    motion[moving] = np.cross(axis, coords[moving] - coords[k])
+    return motion

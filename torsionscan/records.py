@@ -21,6 +21,8 @@ from rdkit import Chem
 from .errors import InputError
 from .mm import Quartet
 from .profile import FourierFit
+from .reference import ReferenceEnergy
+from .rotor import ConformerFreeEnergies, RotorPopulations, WellFundamental
 from .settings import ScanSettings
 from .thermo import RegionPopulations, is_s_cis
 from .torsionfit import DEFAULT_MAX_PERIODICITY, MAX_PERIODICITY, TorsionTerm
@@ -145,6 +147,7 @@ class StationaryRecord:
     imaginary_count: int | None = None
     imaginary_along_torsion: bool | None = None  # freezing the dihedral removes an imaginary mode
     gibbs_corrections_kcal_mol: tuple[float, ...] = ()  # G - E_el per temperature of the settings
+    other_modes_gibbs_kcal_mol: tuple[float, ...] = ()  # the same without the torsion mode (projected out)
 
 
 @dataclass(frozen=True)
@@ -179,6 +182,27 @@ class Readiness:
 
 
 @dataclass(frozen=True)
+class Interconversion:
+    """Eyring transition-state rates between the s-trans and s-cis regions at one temperature.
+
+    forward: from the lowest s-trans minimum over the lowest barrier top into the s-cis region;
+    backward: from the lowest s-cis minimum back. Free-energy barriers in kcal/mol (quasi-RRHO,
+    the barrier top's imaginary mode left out); rates per second with the Wigner tunnelling
+    factor from the top's imaginary frequency; half_life_s: of the approach to equilibrium,
+    ln 2 / (k_forward + k_backward).
+    """
+
+    temperature_k: float
+    forward_barrier_kcal_mol: float
+    backward_barrier_kcal_mol: float
+    forward_rate_per_s: float
+    backward_rate_per_s: float
+    forward_transmission: float
+    backward_transmission: float
+    half_life_s: float
+
+
+@dataclass(frozen=True)
 class ProfileAnalysis:
     """What one energy profile says: its fit, stationary points, barriers and populations.
 
@@ -195,6 +219,26 @@ class ProfileAnalysis:
     rrho_populations: tuple[RrhoPopulations, ...] = ()
     planar_scis: StationaryRecord | None = None  # dienes: the planar s-cis structure (with frequencies)
     readiness: tuple[Readiness, ...] = ()  # dienes, with frequencies
+    rotor_inertia_amu_bohr2: float = float("nan")  # reduced moment of the torsion at the global minimum
+    rotor: tuple[RotorPopulations, ...] = ()  # the torsion as a 1-D quantum hindered rotor on the fit
+    wells: tuple[WellFundamental, ...] = ()  # torsional fundamental (and tunnelling splitting) per well
+    free_energies: tuple[ConformerFreeEnergies, ...] = ()  # rotor + other modes (harmonic, torsion projected)
+    interconversion: tuple[Interconversion, ...] = ()
+
+    def leading_populations(self):
+        """The one population answer per temperature, best model first: region free energies from the
+        quantum rotor plus the other modes (with frequencies), else the quantum rotor alone, else the
+        classical integral. Each entry has temperature_k, s_cis, s_trans and delta_g_kcal_mol."""
+        return self.free_energies or self.rotor or self.populations
+
+    @property
+    def population_model(self):
+        """Words for the model behind leading_populations()."""
+        if self.free_energies:
+            return "quantum hindered rotor with harmonic other modes"
+        if self.rotor:
+            return "quantum hindered rotor on the electronic profile"
+        return "classical integral over the profile"
 
     def relative_kcal_mol(self, energy_hartree):
         """An absolute energy (Hartree) relative to this profile's zero, kcal/mol (NaN stays NaN)."""
@@ -244,6 +288,15 @@ class RescoredProfile:
 
 
 @dataclass(frozen=True)
+class ReferencePoint:
+    """The coupled-cluster reference energy of one refined stationary structure."""
+
+    kind: str  # "minimum", "maximum" or "planar s-cis"
+    angle_deg: float
+    energy: ReferenceEnergy
+
+
+@dataclass(frozen=True)
 class RefinedProfile:
     """The scan's structures re-optimised at a higher level with the dihedral held exactly.
 
@@ -262,6 +315,13 @@ class RefinedProfile:
     gradient_evaluations: int
     wall_time_s: float
     thermal_note: str  # which thermal corrections the free energies use
+    reference: tuple[ReferencePoint, ...] = ()  # coupled-cluster estimates at the refined stationary points
+    reference_label: str = ""
+
+    def reference_relative_kcal_mol(self, point):
+        """A ReferencePoint's energy relative to the lowest reference minimum, kcal/mol."""
+        lowest = min(p.energy.energy_hartree for p in self.reference if p.kind == "minimum")
+        return (point.energy.energy_hartree - lowest) * HARTREE_KCAL_MOL
 
 
 @dataclass(frozen=True)
@@ -331,6 +391,8 @@ class BondScan:
     rescored: RescoredProfile | None = None
     refined: RefinedProfile | None = None
     torsion_fit: TorsionFit | None = None
+    scis_meaning: str = ""  # which fragments 0 deg puts syn, e.g. "s-cis: C1=C2 syn to C3=C4" (1-based)
+    symmetric_rotor: bool = False  # equivalent ortho sides, confirmed E(phi) = E(180 - phi): no s-cis/s-trans split
 
     @property
     def label(self):

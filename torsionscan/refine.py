@@ -27,10 +27,12 @@ from .analysis import barriers_between, display_angle
 from .coordinate import DihedralConstraint
 from .driver import BondScanner
 from .errors import CalculationError, InputError
-from .freeenergy import readiness, rrho_populations
+from .freeenergy import interconversion, readiness, rrho_populations, torsion_as_rotor
 from .geometry import dihedral
-from .molecule import Molecule, TorsionBond
-from .records import ProfileAnalysis, RefinedProfile, ScanPoint, StationaryRecord
+from .molecule import Molecule, TorsionBond, is_diene_bond
+from .records import ProfileAnalysis, ReferencePoint, RefinedProfile, ScanPoint, StationaryRecord
+from .reference import LABEL as REFERENCE_LABEL
+from .reference import check_reference, focal_point_energy
 from .relax import Relaxer
 from .rescore import disagreement
 from .units import wrap_deg
@@ -70,7 +72,8 @@ def _carried_over(records, scanned):
         if not same:
             return records, False
         source = min(same, key=lambda s: abs(wrap_deg(s.angle_deg - record.angle_deg)))
-        carried.append(replace(record, gibbs_corrections_kcal_mol=source.gibbs_corrections_kcal_mol))
+        carried.append(replace(record, gibbs_corrections_kcal_mol=source.gibbs_corrections_kcal_mol,
+                               other_modes_gibbs_kcal_mol=source.other_modes_gibbs_kcal_mol))
     return tuple(carried), True
 
 
@@ -79,8 +82,9 @@ def _with_free_energies(analysis, scanned, planar, temperatures_k):
     minima, ok = _carried_over(analysis.minima, scanned.minima)
     maxima, _ = _carried_over(analysis.maxima, scanned.maxima)
     if not ok or not minima:
-        return replace(analysis, minima=minima, maxima=maxima)
-    update = dict(minima=minima, maxima=maxima, rrho_populations=rrho_populations(minima, temperatures_k))
+        return replace(analysis, minima=minima, maxima=maxima, planar_scis=planar)
+    update = dict(minima=minima, maxima=maxima, rrho_populations=rrho_populations(minima, temperatures_k),
+                  planar_scis=planar)
     if planar is not None and scanned.planar_scis is not None:
         planar = replace(planar, gibbs_corrections_kcal_mol=scanned.planar_scis.gibbs_corrections_kcal_mol)
         update.update(planar_scis=planar, readiness=readiness(minima, planar, temperatures_k))
@@ -122,12 +126,16 @@ def _refine_all(result, bond, engine_factory, processes):
         scanner.record_visit(index, point, hessian)
     circle, points, analysis, _ = scanner.analyse()
     planar = None
-    if bond.profile.planar_scis is not None:
+    if is_diene_bond(result.mol, bond.dihedral_atoms):
         at_zero, _ = scanner.nearest(circle, 0.0)
         if abs(wrap_deg(at_zero.angle_deg)) < 1e-9:
             planar = _planar_record(at_zero.energy_hartree, at_zero.coords_bohr, at_zero.converged,
                                     "grid point held at 0 deg")
     analysis = _with_free_energies(analysis, bond.profile, planar, settings.temperatures_k)
+    masses = [atom.GetMass() for atom in result.mol.GetAtoms()]
+    analysis = torsion_as_rotor(analysis, masses, bond.dihedral_atoms, scanner.coordinate.moving[0],
+                                settings.temperatures_k, settings.scis_window_deg)
+    analysis = replace(analysis, interconversion=interconversion(analysis, settings.temperatures_k))
     verdict = disagreement(bond, analysis, tuple(energies), result.method)
     evaluations = sum(o["evaluations"] for o in outcomes) + engine.evaluations
     return points, analysis, verdict, evaluations
@@ -139,8 +147,9 @@ def _refine_stationary(result, bond, engine_factory, processes):
     scanned = bond.profile
     targets = [(m, None, "free optimisation") for m in scanned.minima]
     targets += [(m, m.angle_deg, "held at the scan's angle") for m in scanned.maxima]
-    if scanned.planar_scis is not None:
-        targets.append((scanned.planar_scis, 0.0, "held at 0 deg"))
+    if is_diene_bond(result.mol, bond.dihedral_atoms):
+        start = scanned.planar_scis or min(bond.relaxed_points, key=lambda p: abs(wrap_deg(p.angle_deg)))
+        targets.append((_planar_record(start.energy_hartree, start.coords_bohr, True, ""), 0.0, "held at 0 deg"))
     missing = [t[0].kind for t in targets if t[0].coords_bohr is None]
     if missing:
         raise InputError(f"bond {bond.label}: the scan has no structure for its {missing[0]}; rerun the scan")
@@ -191,4 +200,32 @@ def refine_result(result, engine_factory, level_label, level_reference="", point
         refined = RefinedProfile(level_label, level_reference, points_mode, points, analysis, verdict, evaluations,
                                  time.perf_counter() - started, THERMAL_NOTE)
         bonds.append(replace(bond, refined=refined))
+    return replace(result, bonds=tuple(bonds))
+
+
+def _reference_job(job):
+    symbols, coords, charge, threads = job
+    return focal_point_energy(symbols, coords, charge, threads)
+
+
+def add_reference(result, processes=1, threads=None):
+    """The ScanResult with coupled-cluster reference energies at every refined bond's minima,
+    barrier tops and planar s-cis structure (refine_result first); InputError above the size limit."""
+    check_reference(result.symbols, result.charge, result.unpaired_electrons)
+    bonds = []
+    for bond in result.bonds:
+        if bond.refined is None:
+            raise InputError(f"bond {bond.label}: the reference tier needs a refined profile; add --refine LEVEL")
+        analysis = bond.refined.analysis
+        records = [r for r in (*analysis.minima, *analysis.maxima, analysis.planar_scis)
+                   if r is not None and r.coords_bohr is not None and r.converged]
+        jobs = [(result.symbols, r.coords_bohr, result.charge, threads) for r in records]
+        if processes > 1 and len(jobs) > 1:
+            with ProcessPoolExecutor(max_workers=min(processes, len(jobs)),
+                                     mp_context=multiprocessing.get_context("spawn")) as pool:
+                energies = list(pool.map(_reference_job, jobs))
+        else:
+            energies = [_reference_job(job) for job in jobs]
+        points = tuple(ReferencePoint(r.kind, r.angle_deg, e) for r, e in zip(records, energies))
+        bonds.append(replace(bond, refined=replace(bond.refined, reference=points, reference_label=REFERENCE_LABEL)))
     return replace(result, bonds=tuple(bonds))

@@ -5,6 +5,7 @@ The folder's summary.json holds the whole result (coordinates included), so noth
 the folder is read; every file is written again by output.write_results.
 """
 
+import functools
 from dataclasses import replace
 from pathlib import Path
 
@@ -14,7 +15,11 @@ from .errors import InputError
 from .forcefield import fit_torsion
 from .mm import read_mm_energies
 from .records import FitOptions
-from .rescore import parse_level, rescore_result
+from .refine import POINT_MODES, add_reference, refine_result
+from .reference import check_reference
+from .rescore import check_level, parse_level, rescore_result
+
+REFERENCE_TIERS = ("coupled-cluster",)
 
 
 def read_result(folder):
@@ -65,3 +70,42 @@ def fit_folder(folder, bond=None, options=None, mm_energies_path=None, quantum="
     result = replace(result, bonds=bonds)
     write_results(result, folder)
     return fits
+
+
+def check_refinement(level_text, settings, points_mode="all", reference=None):
+    """The DFT Level of a refinement request, checked before any scan (one-line InputError otherwise)."""
+    level = parse_level(level_text)
+    if points_mode not in POINT_MODES:
+        raise InputError(f"--refine-points {points_mode!r}: choose {' or '.join(POINT_MODES)}")
+    if reference is not None and reference not in REFERENCE_TIERS:
+        raise InputError(f"--reference {reference!r}: choose {', '.join(REFERENCE_TIERS)}")
+    if settings.solvent:
+        raise InputError("refinement is gas phase only (the DFT path carries no implicit solvent): drop --solvent")
+    check_level(level)
+    return level
+
+
+def refine_with_dft(result, level, points_mode="all", reference=None, processes=None):
+    """The ScanResult refined at a DFT level (and with the coupled-cluster reference if asked);
+    processes: parallel optimisations (default all usable cores), each with cores/processes threads."""
+    from .engines.dft import DftEngine
+
+    if result.settings.solvent:
+        raise InputError("refinement is gas phase only: the scan used an implicit solvent; refine a gas-phase scan")
+    processes = processes or usable_cores()
+    threads = max(1, usable_cores() // processes)
+    if reference is not None:
+        check_reference(result.symbols, result.charge, result.unpaired_electrons)
+    factory = functools.partial(DftEngine, result.symbols, level, result.charge, result.unpaired_electrons, threads)
+    factory()  # the level, checked on this molecule's elements and spin before any optimisation
+    refined = refine_result(result, factory, level.label, level.reference, points_mode, processes)
+    return add_reference(refined, processes, threads) if reference else refined
+
+
+def refine_folder(folder, level_text, points_mode="all", reference=None, processes=None):
+    """Refine every bond of a result folder at a DFT level; rewrites the folder, returns the ScanResult."""
+    result = read_result(folder)
+    level = check_refinement(level_text, result.settings, points_mode, reference)
+    result = refine_with_dft(result, level, points_mode, reference, processes)
+    write_results(result, folder)
+    return result
