@@ -2,10 +2,11 @@
 
     E = E_HF(QZ) + E_corr,MP2(TZ/QZ -> basis-set limit) + [E_CCSD(T) - E_MP2](DZ)
 
-HF in the larger basis; MP2 correlation extrapolated with the X^-3 form of Helgaker,
+HF in the larger basis; HF and MP2 in the two larger bases with density fitting (the JK- and
+RI-fitting sets PySCF pairs with them; fitting errors cancel in relative energies); MP2 correlation extrapolated with the X^-3 form of Helgaker,
 Klopper, Koch and Noga (J. Chem. Phys. 1997, 106, 9639): E_X = E_CBS + A X^-3, so from X = 3, 4,
 E_CBS = (4^3 E_4 - 3^3 E_3) / (4^3 - 3^3); the higher-order correlation CCSD(T) - MP2 in the
-small basis; frozen core throughout; MP2 with density fitting, CCSD(T) conventional. Closed
+small basis (conventional integrals); frozen core throughout. Closed
 shells only (restricted HF). Energies in Hartree, coordinates in Bohr.
 
 Cost grows steeply (CCSD(T) roughly as o^3 v^4), so requests above REFERENCE_LIMITS are refused
@@ -73,11 +74,11 @@ def check_reference(symbols, charge=0, unpaired_electrons=0, bases=BASES):
                          f"the limit of {REFERENCE_LIMITS['basis_functions_large']}: use --refine alone")
 
 
-def _hf(mol, threads):
+def _hf(mol, threads, density_fit=False):
     cc, _, lib, mp, scf = _pyscf()
     if threads:
         lib.num_threads(threads)
-    solver = scf.RHF(mol)
+    solver = scf.RHF(mol).density_fit() if density_fit else scf.RHF(mol)
     solver.conv_tol = 1e-10
     energy = solver.kernel()
     if not solver.converged:
@@ -93,7 +94,7 @@ def focal_point_energy(symbols, coords_bohr, charge=0, threads=None, bases=BASES
     x_medium, x_large = cardinals or (CARDINAL[medium], CARDINAL[large])
     correlation = []
     for basis in (medium, large):
-        solver, hf = _hf(_molecule(symbols, coords_bohr, basis, charge), threads)
+        solver, hf = _hf(_molecule(symbols, coords_bohr, basis, charge), threads, density_fit=True)
         correlation.append(float(mp.MP2(solver).set_frozen().density_fit().kernel()[0]))
     hf_large = hf
     solver, _ = _hf(_molecule(symbols, coords_bohr, small, charge), threads)
