@@ -107,17 +107,26 @@ def test_scan_command_with_the_model_engine(monkeypatch, tmp_path, capsys):
     result = _summary(out)
     assert result.method == "model potential"
     assert f"— {result.method} via {result.engine}, gas phase" in stdout
+    # the header's SMILES carries the atom numbers the dihedral lines use
+    assert stdout.splitlines()[0].startswith(f"{result.name}  [CH2:1]=[CH:2][CH:3]=[CH2:4]  — ")
+    assert "dihedral 1-2-3-4 (bond 2-3, conjugated; 0° = s-cis: C1=C2 syn to C3=C4, 180° = s-trans)" in stdout
+    profile = result.bonds[0].profile
+    assert f"  populations ({profile.population_model}):" in stdout
+    assert stdout.index("  populations (") < stdout.index("  minima (kcal/mol)")
     assert result.caution in stdout and "Semi-empirical" not in stdout
     assert "torsion terms vs MMFF94" in stdout and result.bonds[0].torsion_fit is not None
     for ending in ("profile.csv", "scan.xyz", "minima.sdf", "profile.png", "profile.svg", "populations.png",
-                   "torsion_fit.json"):
+                   "torsion_fit.json", "structure.svg", "structure.png"):
         assert (out / f"bond_2-3_{ending}").is_file()
+    assert (out / "structure.svg").is_file() and (out / "structure.png").is_file()
 
 
 def test_bonds_command_lists_one_based_bonds(capsys):
     assert main(["bonds", "C=CC(=O)c1ccccc1"]) == 0
     text = capsys.readouterr().out
     assert "2 conjugated single bond(s)" in text and "bond     2-3" in text
+    assert text.startswith("[CH2:1]=[CH:2][C:3](=[O:4])[c:5]1[cH:6][cH:7][cH:8][cH:9][cH:10]1:")
+    assert "dihedral C1-C2-C3-O4   0° = s-cis: C1=C2 syn to C3=O4" in text
 
 
 @pytest.mark.parametrize(

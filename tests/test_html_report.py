@@ -1,5 +1,7 @@
 """The self-contained HTML report: structure, embedded plots, escaping, no external resources;
-and the run's table rows, overview and report built from records (model-engine results: plumbing only)."""
+and the run's table rows, overview and report built from records (model-engine results: plumbing only):
+the leading population answer and its named cross-checks in the table, symmetric rotors (their own
+columns, left out of the overview), numbered SMILES, and each compound's card with its drawing."""
 
 import base64
 import csv
@@ -15,14 +17,19 @@ import pytest
 from matplotlib.figure import Figure
 
 import torsionscan
+from torsionscan import rotor
 from torsionscan.compounds import CompoundEntry
 from torsionscan.engines.model import MODEL_CAUTION, ModelEngine
-from torsionscan.molecule import find_conjugated_bonds, load_molecule
+from torsionscan.molecule import find_conjugated_bonds, load_molecule, numbered_smiles
 from torsionscan.output.html import html_report
-from torsionscan.output.report import compound_rows, overview_figure, table_columns
+from torsionscan.output.report import (
+    SLOW_INTERCONVERSION_NOTE, SYMMETRIC_ROTOR_REASON, compound_rows, overview_figure, symmetric_rotor_shape,
+    table_columns,
+)
 from torsionscan.profile import FourierSeries
-from torsionscan.records import MethodDisagreement, RescoredProfile
+from torsionscan.records import Interconversion, MethodDisagreement, RescoredProfile, RrhoPopulations
 from torsionscan.runfolder import write_run_report
+from torsionscan.units import rt_kcal_mol
 from torsionscan.settings import ScanSettings
 from torsionscan.store import RunStore
 
@@ -325,6 +332,124 @@ def _record(name, status="done", reason="", **extra):
             "wall_time_s": 1.25, "rescore_failure": ""}
 
 
+@pytest.fixture(scope="module")
+def biaryl_scan():
+    """A biphenyl-shaped symmetric rotor on the model potential, V = -0.3 cos 2phi + 0.6 cos 4phi kcal/mol
+    (minima where cos 2phi = 1/8; V(0) = 0.3, V(90) = 0.9, V(min) = -0.61875), marked symmetric."""
+    molecule = load_molecule("c1ccccc1-c1ccccc1")
+    (bond,) = find_conjugated_bonds(molecule)
+    engine = ModelEngine(molecule.mol, [(bond.atoms, FourierSeries(0.0, (0.0, -0.3, 0.0, 0.6), (0.0,) * 4))])
+    result = torsionscan.scan("c1ccccc1-c1ccccc1", name="biaryl", engine=engine,
+                              settings=dataclasses.replace(MODEL_SETTINGS, step_deg=30.0))
+    return dataclasses.replace(result, bonds=(dataclasses.replace(result.bonds[0], symmetric_rotor=True),))
+
+
+INERTIA = 20.0  # amu Bohr^2, made up
+
+
+def _filled(result, barrier_kcal=22.0):
+    """The result with its quantum-rotor fields filled by hand (torsionscan.rotor, inertia INERTIA): rotor
+    populations, wells, region free energies (s-cis other modes +0.4 kcal/mol), an all-harmonic estimate
+    and an Eyring interconversion over barrier_kcal (hours at 298 K for 22 kcal/mol)."""
+    (bond,) = result.bonds
+    series = bond.profile.fit.series
+    t = result.settings.temperatures_k[0]
+    window = rotor.BOLTZMANN_WINDOW_RT * rt_kcal_mol(t)
+    levels, vectors = rotor.torsional_levels(series, INERTIA, window_kcal_mol=window)
+    rates = [rotor.eyring_rate(g, t) for g in (barrier_kcal, barrier_kcal - 0.5)]
+    profile = dataclasses.replace(
+        bond.profile, rotor_inertia_amu_bohr2=INERTIA, rotor=(rotor.rotor_populations(series, INERTIA, t),),
+        wells=rotor.well_fundamentals(series, INERTIA),
+        free_energies=(rotor.conformer_free_energies(levels, rotor.region_weights(vectors), 0.4, 0.0, t),),
+        rrho_populations=(RrhoPopulations(t, 0.3, 0.7, -rt_kcal_mol(t) * math.log(0.3 / 0.7)),),
+        interconversion=(Interconversion(t, barrier_kcal, barrier_kcal - 0.5, *rates, 1.0, 1.0,
+                                         rotor.half_life_s(sum(rates))),))
+    return dataclasses.replace(result, bonds=(dataclasses.replace(bond, profile=profile),))
+
+
+def test_numbered_smiles_and_the_meaning_of_zero_go_into_the_table(model_scan):
+    (row,) = compound_rows(_record("butadiene"), model_scan)
+    assert row["smiles"] == numbered_smiles(model_scan.mol) == "[CH2:1]=[CH:2][CH:3]=[CH2:4]"
+    assert row["scis_meaning"] == model_scan.bonds[0].scis_meaning == "s-cis: C1=C2 syn to C3=C4"
+    (failed,) = compound_rows(_record("x", status="failed", reason="no"), None)
+    assert failed["smiles"] == "C=CC=C"  # no result: the list's SMILES as given
+
+
+def test_the_leading_answer_and_named_cross_checks_fill_the_table(model_scan):
+    result = _filled(model_scan)
+    (bond,) = result.bonds
+    profile = bond.profile
+    (row,) = compound_rows(_record("butadiene"), result)
+    lead, (rate,) = profile.free_energies[0], profile.interconversion
+    assert row["population_model"] == profile.population_model == "quantum hindered rotor with harmonic other modes"
+    assert row["s_cis_298.15K"] == lead.s_cis
+    assert row["dG_scis_minus_strans_298.15K_kcal_mol"] == round(lead.delta_g_kcal_mol, 4)
+    assert row["scis_window_298.15K"] == profile.rotor[0].scis_window
+    assert row["s_cis_classical_298.15K"] == profile.populations[0].s_cis
+    assert row["s_cis_harmonic_298.15K"] == 0.3
+    assert rate.half_life_s > 60.0
+    assert row["half_life_298.15K_s"] == pytest.approx(rate.half_life_s, rel=1e-3)
+    assert (row["symmetric_rotor"], row["twist_deg"], row["planar_barrier_kcal_mol"]) == (False, None, None)
+    assert set(row) <= set(table_columns([298.15], []))
+
+
+def test_a_symmetric_rotor_row_has_its_own_columns_and_no_s_cis_split(biaryl_scan):
+    (row,) = compound_rows(_record("biaryl"), biaryl_scan)
+    twist, planar, perpendicular = symmetric_rotor_shape(biaryl_scan.bonds[0].profile)
+    assert row["symmetric_rotor"] is True
+    # closed form of the model series (fixture docstring); 0.2 deg: the model's minimum refinement on a
+    # flat well; 0.005 kcal/mol: the fit of a 30-degree grid
+    assert row["twist_deg"] == round(twist, 3) and twist == pytest.approx(0.5 * math.degrees(math.acos(0.125)), abs=0.2)
+    assert row["planar_barrier_kcal_mol"] == round(planar, 4) and planar == pytest.approx(0.91875, abs=5e-3)
+    assert row["perpendicular_barrier_kcal_mol"] == round(perpendicular, 4)
+    assert perpendicular == pytest.approx(1.51875, abs=5e-3)
+    for key in ("s_cis_298.15K", "scis_window_298.15K", "dG_scis_minus_strans_298.15K_kcal_mol",
+                "s_cis_classical_298.15K", "s_cis_harmonic_298.15K", "dG_to_planar_scis_298.15K_kcal_mol",
+                "half_life_298.15K_s", "population_model", "scis_min_deg", "barrier_to_other_region_kcal_mol"):
+        assert row.get(key) is None, key
+    assert row["scis_meaning"] == biaryl_scan.bonds[0].scis_meaning and row["global_min_deg"] is not None
+
+
+def test_the_overview_leaves_symmetric_rotors_out_and_says_why(model_scan, biaryl_scan):
+    rows = compound_rows(_record("butadiene"), model_scan) + compound_rows(_record("biaryl"), biaryl_scan)
+    figure = overview_figure(rows, 298.15, model_scan.method)
+    labels = [t.get_text() for t in figure.axes[0].get_yticklabels()]
+    notes = [t.get_text() for t in figure.texts]
+    title = figure.axes[0].get_title()
+    plt.close(figure)
+    assert labels == ["butadiene  (bond 2-3)"]
+    assert notes == [f"1 symmetric rotor bond not ranked: {SYMMETRIC_ROTOR_REASON}"]
+    assert model_scan.bonds[0].profile.population_model in title
+    figure = overview_figure(compound_rows(_record("butadiene"), model_scan), 298.15, model_scan.method)
+    assert figure.texts == []
+    plt.close(figure)
+
+
+def test_cards_are_escaped_nested_and_embedded(inputs):
+    png, svg = _png(7), b"<svg xmlns='http://www.w3.org/2000/svg'><text>1</text></svg>"
+    cards = {"butadiene": {"smiles": "[CH2:1]=[CH:2]<x>", "drawing_png": png, "drawing_svg": svg,
+                           "bonds": [("2-3", ["0° = s-cis: C1=C2 syn to C3=C4",
+                                              ("populations (model <m>):", ["298.15 K: s-cis 1.0%"])])]},
+             "biphenyl": {"smiles": "c", "drawing_png": None, "drawing_svg": svg, "bonds": []}}
+    page = html_report(**{**inputs, "cards": cards})
+    parsed = parse(page)
+    assert parsed.errors == [] and "<x>" not in page and "<m>" not in page
+    butadiene, biphenyl = (next(s for key, s in parsed.sections.items() if name in s["text"])
+                           for name in ("butadiene", "biphenyl"))
+    structure = butadiene["imgs"][0]
+    assert structure["alt"] == "structure of butadiene with atom numbers"
+    assert base64.b64decode(structure["src"].split(",", 1)[1]) == png
+    assert len(butadiene["imgs"]) == 1 + len(inputs["plots"]["butadiene"])
+    assert "[CH2:1]=[CH:2]<x>" in butadiene["text"] and "298.15 K: s-cis 1.0%" in butadiene["text"]
+    assert "populations (model <m>):" in butadiene["text"] and "C1=C2 syn to C3=C4" in butadiene["text"]
+    lists = [tag for tag, _ in parsed.starts].count("ul")
+    assert lists == 2  # butadiene's bond list and its population sub-list; biphenyl has no bonds
+    # no PNG: the SVG as data, so the page stays one file with no address in it
+    assert biphenyl["imgs"][0]["src"].startswith("data:image/svg+xml;base64,")
+    assert base64.b64decode(biphenyl["imgs"][0]["src"].split(",", 1)[1]) == svg
+    assert "http://" not in page
+
+
 def test_compound_rows_from_a_result(model_scan):
     (row,) = compound_rows(_record("butadiene", supplier="S-1", bond="list value"), model_scan)
     (bond,) = model_scan.bonds
@@ -338,9 +463,12 @@ def test_compound_rows_from_a_result(model_scan):
     # the two minima are both s-trans: no barrier into the other region
     assert row["barrier_to_other_region_kcal_mol"] is None
     assert row["rotation_max_kcal_mol"] == pytest.approx(5.30, abs=0.01)
-    p = bond.profile.populations[0]
-    assert row["s_cis_298.15K"] == p.s_cis and row["scis_window_298.15K"] == p.scis_window
-    assert row["s_cis_rrho_298.15K"] is None  # no frequencies
+    p, lead = bond.profile.populations[0], bond.profile.leading_populations()[0]
+    window = (bond.profile.rotor or bond.profile.populations)[0].scis_window
+    assert row["s_cis_298.15K"] == lead.s_cis and row["scis_window_298.15K"] == window
+    assert row["s_cis_classical_298.15K"] == p.s_cis
+    assert row.get("s_cis_harmonic_298.15K") is None and row.get("half_life_298.15K_s") is None  # no frequencies
+    assert row["population_model"] == bond.profile.population_model
     assert row["fit_target_met"] is True and row["hysteresis"] is False
     assert row["compound_wall_time_s"] == 1.25
     assert "rescore_level" not in row
@@ -356,7 +484,7 @@ def test_rescored_columns_come_from_the_rescored_profile(model_scan):
     (row,) = compound_rows({**_record("butadiene"), "rescore_failure": ""}, result)
     assert row["rescore_level"] == "X/def2-svp"
     assert row["rescored_global_min_deg"] == round(bond.profile.lowest_minimum().angle_deg, 3)
-    assert row["rescored_s_cis_298.15K"] == bond.profile.populations[0].s_cis
+    assert row["rescored_s_cis_298.15K"] == bond.profile.leading_populations()[0].s_cis
     assert (row["method_disagreement_max_kcal_mol"], row["method_disagreement_warning"]) == (0.2346, "differ")
 
 
@@ -408,7 +536,49 @@ def test_the_run_report_is_rebuilt_from_the_store(tmp_path, model_scan):
     folder.rmdir()
     write_run_report(out, rebuild_folders=True)
     assert (folder / "summary.json").read_bytes() == written
-    for name in ("bond_2-3_profile.png", "bond_2-3_scan.xyz", "bond_2-3_minima.sdf", "bond_2-3_profile.csv"):
+    for name in ("bond_2-3_profile.png", "bond_2-3_scan.xyz", "bond_2-3_minima.sdf", "bond_2-3_profile.csv",
+                 "structure.svg", "structure.png", "bond_2-3_structure.svg", "bond_2-3_structure.png"):
         assert (folder / name).stat().st_size > 0
     assert report.is_file() and (out / "scan_table.csv").is_file()
+
+
+def test_the_report_card_shows_the_drawing_and_what_each_bond_says(tmp_path, model_scan, biaryl_scan):
+    out = tmp_path / "run"
+    filled = _filled(model_scan)
+    with RunStore(out) as store:
+        store.claim_settings(MODEL_SETTINGS.as_dict(), "list.csv")
+        store.add_compounds([CompoundEntry(name="butadiene", where="line 2", smiles="C=CC=C", extra={}),
+                             CompoundEntry(name="biaryl", where="line 3", smiles="c1ccccc1-c1ccccc1", extra={})])
+        session = store.start_session("t")
+        store.record_done("butadiene", filled, session, 1.0)
+        store.record_done("biaryl", biaryl_scan, session, 1.0)
+    report, _ = write_run_report(out)
+    page = report.read_text()
+    parsed = parse(page)
+    assert parsed.errors == [] and "http://" not in page and "https://" not in page
+    sections = {key[len("c-"):]: section for key, section in parsed.sections.items()}
+    butadiene, biaryl = sections["butadiene"], sections["biaryl"]
+    (bond,) = filled.bonds
+    profile = bond.profile
+    drawing = butadiene["imgs"][0]
+    assert drawing["alt"] == "structure of butadiene with atom numbers"
+    prefix = "data:image/png;base64,"
+    assert drawing["src"].startswith(prefix)
+    folder = out / "compounds" / "butadiene"
+    assert base64.b64decode(drawing["src"][len(prefix):]) == (folder / "structure.png").read_bytes()
+    text = butadiene["text"]
+    lead, (well,), (rate,) = profile.free_energies[0], profile.wells, profile.interconversion
+    assert numbered_smiles(filled.mol) in text and bond.scis_meaning in text
+    assert f"populations ({profile.population_model}):" in text
+    assert text.index(f"298.15 K: s-cis {100 * lead.s_cis:.1f}%") < text.index("cross-checks")
+    assert "classical integral" in text and "all-harmonic, from free energies of the minima 30.0%" in text
+    assert f"±{abs(well.angle_deg):.1f}° {well.fundamental_cm1:.1f} cm⁻¹" in text
+    assert f"half-life {rate.half_life_s:.3g} s" in text and SLOW_INTERCONVERSION_NOTE in text
+    assert f"symmetric rotor: {SYMMETRIC_ROTOR_REASON}" in biaryl["text"] and "populations (" not in biaryl["text"]
+    twist, _, _ = symmetric_rotor_shape(biaryl_scan.bonds[0].profile)
+    assert f"twist {twist:.1f}°" in biaryl["text"]
+    with (out / "scan_table.csv").open() as handle:
+        rows = {row["name"]: row for row in csv.DictReader(handle)}
+    assert rows["biaryl"]["symmetric_rotor"] == "True" and rows["biaryl"]["s_cis_298.15K"] == ""
+    assert rows["butadiene"]["smiles"] == "[CH2:1]=[CH:2][CH:3]=[CH2:4]"
 

@@ -40,6 +40,8 @@ class BatchOptions:
     retry_failed: bool = False
     timeout_per_compound_s: float | None = None
     rescore: str | None = None  # DFT level to re-score every scan with (rescore.parse_level)
+    refine: str | None = None  # DFT level to re-optimise every scan at (workflows.refine_with_dft)
+    refine_points: str = "all"  # "all" grid points or only the "stationary" ones
 
     def check(self):
         if self.workers is not None and self.workers < 1:
@@ -90,6 +92,9 @@ def scan_compound(job):
         rescore_failure = ""
         if job.get("rescore"):
             result, rescore_failure = _rescored(result, job)
+        if job.get("refine"):
+            result, refine_failure = _refined(result, job)
+            rescore_failure = "; ".join(r for r in (rescore_failure, refine_failure) if r)
         plain = result.to_dict()
         json.dumps(plain, allow_nan=False)  # a value the store cannot hold fails this compound, here
         # drawing here keeps the single writing process free to take the next outcome
@@ -115,11 +120,24 @@ def _rescored(result, job):
         return result, f"re-scoring at {job['rescore']} failed: {error}"
 
 
+def _refined(result, job):
+    """(result refined at the job's DFT level, "") or, if that fails, (the scan unchanged, reason);
+    the optimisations run one after the other inside this worker."""
+    from .rescore import parse_level
+    from .workflows import refine_with_dft
+
+    try:
+        return refine_with_dft(result, parse_level(job["refine"]), job["refine_points"], processes=1,
+                               threads=job["threads"]), ""
+    except TorsionScanError as error:  # keep the finished scan; say why the refinement is missing
+        return result, f"refinement at {job['refine']} failed: {error}"
+
+
 def make_job(record, settings, options):
     """The picklable work item of one compound (record: RunStore.compound)."""
     return {"name": record["name"], "input": record["input"], "settings": settings,
             "time_limit_s": options.timeout_per_compound_s, "rescore": options.rescore,
-            "threads": options.threads_per_worker}
+            "refine": options.refine, "refine_points": options.refine_points, "threads": options.threads_per_worker}
 
 
 def _local_outcomes(jobs, workers, threads_per_worker):
@@ -212,6 +230,11 @@ def run_batch(list_path, out_dir, settings, options=BatchOptions(), progress=Non
             from .rescore import check_rescoring
 
             claimed["rescore_level"] = check_rescoring(options.rescore, settings).label
+        if options.refine:
+            from .workflows import check_refinement
+
+            claimed["refine_level"] = check_refinement(options.refine, settings, options.refine_points).label
+            claimed["refine_points"] = options.refine_points
         store.claim_settings(claimed, list_path)
         store.add_compounds(entries)
         todo = store.names("pending") + (store.names("failed") if options.retry_failed else [])

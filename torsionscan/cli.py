@@ -3,13 +3,12 @@
 
 import argparse
 import logging
-import math
 import statistics
 import sys
 from pathlib import Path
 
 from . import __version__
-from .errors import TorsionScanError
+from .errors import InputError, TorsionScanError
 
 log = logging.getLogger("torsionscan")
 DEMO_LIST = Path("inputs/demo_compounds.csv")
@@ -56,6 +55,25 @@ def _add_batch_options(parser):
                         help="give up on a compound after this many seconds (checked between gradients)")
     parser.add_argument("--rescore", metavar="LEVEL",
                         help="re-score every scan with DFT single points (cheap, standard, careful or functional/basis)")
+    parser.add_argument("--refine", metavar="LEVEL",
+                        help="re-optimise every scan at a DFT level inside its worker (see 'scan --refine')")
+    parser.add_argument("--refine-points", choices=["all", "stationary"], default="all",
+                        help="with --refine: every grid point (default) or only the stationary points")
+
+
+def _add_refine_options(parser, level_option, required=False):
+    """The refinement options: a level, which points, the reference tier, parallel processes."""
+    points_option = "--refine-points" if level_option == "--refine" else "--points"
+    parser.add_argument(level_option, metavar="LEVEL", required=required, dest="refine" if level_option == "--refine"
+                        else "level", help="re-optimise at this DFT level (dihedral held): cheap, standard, careful "
+                                           "or functional[-d3bj|-d3zero|-d4]/basis (needs the [dft] extra)")
+    parser.add_argument(points_option, dest="refine_points" if level_option == "--refine" else "points",
+                        choices=["all", "stationary"], default="all",
+                        help="re-optimise every grid point (default) or only minima, barrier tops and planar s-cis")
+    parser.add_argument("--reference", choices=["coupled-cluster"],
+                        help="add focal-point CCSD(T)-based energies at the refined stationary points (small molecules)")
+    parser.add_argument("--processes", type=int, default=None,
+                        help="parallel optimisations (default: all cores)")
 
 
 def _add_fit_options(parser):
@@ -126,26 +144,29 @@ def _barrier_lines(analysis, symmetric):
     return lines
 
 
-def _population_lines(analysis):
-    """Integrated populations per temperature with ΔG, and the RRHO estimate beside them when computed."""
-    from .output.summary import populations_disagree
+def _population_lines(analysis, symmetric_rotor=False):
+    """The one population answer first (its model named once, then one line per temperature), then
+    one line of cross-checks; for a symmetric rotor the reason there is no split and its shape."""
+    from .output.report import cross_check_text, population_texts, symmetric_rotor_texts
 
-    lines = []
-    for n, p in enumerate(analysis.populations):
-        delta_g = p.delta_g_kcal_mol
-        line = (
-            f"  {p.temperature_k:g} K: s-cis {100 * p.s_cis:.1f}%, s-trans {100 * p.s_trans:.1f}%, "
-            f"|φ| ≤ {p.scis_window_deg:g}° {100 * p.scis_window:.2f}%, "
-            f"ΔG(s-cis − s-trans) " + (f"{delta_g:+.2f} kcal/mol" if math.isfinite(delta_g) else "beyond numerical range")
-        )
-        if n < len(analysis.rrho_populations):
-            rrho = analysis.rrho_populations[n]
-            line += f"; from free energies of the minima: s-cis {100 * rrho.s_cis:.1f}%"
-            line += "  [the two estimates disagree]" if populations_disagree(p, rrho) else ""
-        lines.append(line)
-    if not analysis.populations:  # only stationary points known: the free-energy estimate alone
-        lines += [f"  {p.temperature_k:g} K: from free energies of the minima: s-cis {100 * p.s_cis:.1f}%, "
-                  f"s-trans {100 * p.s_trans:.1f}%" for p in analysis.rrho_populations]
+    if symmetric_rotor:
+        return [f"  {text}" for text in symmetric_rotor_texts(analysis)]
+    heading, texts = population_texts(analysis)
+    if not texts:
+        return []
+    lines = [f"  {heading}"] + [f"    {text}" for text in texts]
+    check = cross_check_text(analysis)
+    return lines + ([f"  {check}"] if check else [])
+
+
+def _rotor_lines(analysis, symmetric_rotor=False):
+    """The wells' torsional fundamentals and, with two regions, the interconversion between them."""
+    from .output.report import interconversion_texts, wells_text
+
+    wells = wells_text(analysis)
+    lines = [f"  {wells}"] if wells else []
+    if not symmetric_rotor:
+        lines += [f"  {text}" for text in interconversion_texts(analysis)]
     return lines
 
 
@@ -174,16 +195,22 @@ def _fit_lines(bond):
 
 
 def format_summary(result, out_dir):
-    """Readable terminal report of a ScanResult whose files are in out_dir."""
-    lines = [f"{result.name}  {result.smiles}  — {result.method} via {result.engine}, {_medium(result.settings)}"]
+    """Readable terminal report of a ScanResult whose files are in out_dir: per bond the one
+    population answer first, then minima, barriers, wells, interconversion, frequencies, fit."""
+    from .molecule import numbered_smiles
+    from .output.report import angle_meaning_text
+
+    lines = [f"{result.name}  {numbered_smiles(result.mol)}  — {result.method} via {result.engine}, "
+             f"{_medium(result.settings)}"]
     for bond in result.bonds:
         atoms = "-".join(str(a + 1) for a in bond.dihedral_atoms)
         kind = "conjugated" if bond.conjugated else "chosen"
-        lines.append(f"dihedral {atoms} (bond {bond.label}, {kind}; 0° = s-cis, 180° = s-trans)")
+        lines.append(f"dihedral {atoms} (bond {bond.label}, {kind}; {angle_meaning_text(bond)})")
+        lines += _population_lines(bond.profile, bond.symmetric_rotor)
         lines.append(f"  minima (kcal/mol):   {_minima_text(bond.profile)}")
         lines += _barrier_lines(bond.profile, bond.symmetric)
-        lines += _population_lines(bond.profile)
-        lines += _vibration_lines(bond.profile)
+        lines += _rotor_lines(bond.profile, bond.symmetric_rotor)
+        lines += _vibration_lines(bond.profile, bond.symmetric_rotor)
         lines += _fit_lines(bond)
     for bond in result.bonds:
         lines += _rescored_lines(result, bond)
@@ -201,11 +228,9 @@ def _rescored_lines(result, bond):
     if rescored is None:
         return []
     analysis, verdict = rescored.analysis, rescored.disagreement
-    lines = [f"bond {bond.label} re-scored at {rescored.level} (same geometries; extrema interpolated on the fit)",
-             f"  minima (kcal/mol):   {_minima_text(analysis)}"]
-    for p in analysis.populations:
-        lines.append(f"  {p.temperature_k:g} K: s-cis {100 * p.s_cis:.1f}%, |φ| ≤ {p.scis_window_deg:g}° "
-                     f"{100 * p.scis_window:.2f}%")
+    lines = [f"bond {bond.label} re-scored at {rescored.level} (same geometries; extrema interpolated on the fit)"]
+    lines += _population_lines(analysis, bond.symmetric_rotor)
+    lines.append(f"  minima (kcal/mol):   {_minima_text(analysis)}")
     lines.append(f"  difference to {result.method}: RMS {verdict.rms_kcal_mol:.2f}, max {verdict.max_kcal_mol:.2f} kcal/mol"
                  + (f"  WARNING: {verdict.warning}" if verdict.warning else ""))
     return lines
@@ -213,29 +238,37 @@ def _rescored_lines(result, bond):
 
 def refined_lines(result, bond):
     """Terminal lines of a bond's refined profile (re-optimised at a higher level)."""
+    from .output.report import readiness_texts
+
     refined = bond.refined
     if refined is None:
         return []
     analysis = refined.analysis
     what = "every grid point" if refined.points_mode == "all" else "the stationary points"
     lines = [f"bond {bond.label} refined at {refined.level} ({what} re-optimised, dihedral held; "
-             f"{refined.gradient_evaluations} gradients, {refined.wall_time_s:.0f} s)",
-             f"  minima (kcal/mol):   {_minima_text(analysis)}"]
+             f"{refined.gradient_evaluations} gradients, {refined.wall_time_s:.0f} s)"]
+    lines += _population_lines(analysis, bond.symmetric_rotor)
+    lines.append(f"  minima (kcal/mol):   {_minima_text(analysis)}")
     lines += _barrier_lines(analysis, bond.symmetric)
-    lines += _population_lines(analysis)
-    for r in analysis.readiness:
-        lines.append(f"  diene at {r.temperature_k:g} K: planar s-cis costs ΔG {r.delta_g_kcal_mol:.2f} "
-                     f"(ΔE {r.delta_e_kcal_mol:.2f}) kcal/mol")
+    lines += _rotor_lines(analysis, bond.symmetric_rotor)
+    if not bond.symmetric_rotor:
+        lines += [f"  {text}" for text in readiness_texts(analysis)]
     if refined.disagreement is not None:
         verdict = refined.disagreement
         lines.append(f"  difference to {result.method} at the same angles: RMS {verdict.rms_kcal_mol:.2f}, "
                      f"max {verdict.max_kcal_mol:.2f} kcal/mol" + (f"  WARNING: {verdict.warning}" if verdict.warning else ""))
     lines.append(f"  free energies: {refined.thermal_note}")
+    if refined.reference:
+        shown = "   ".join(f"{p.kind} {p.angle_deg:.1f}° {refined.reference_relative_kcal_mol(p):.2f}"
+                           for p in sorted(refined.reference, key=lambda p: p.angle_deg))
+        lines.append(f"  coupled-cluster reference ({refined.reference_label}), kcal/mol: {shown}")
     return lines
 
 
-def _vibration_lines(analysis):
+def _vibration_lines(analysis, symmetric_rotor=False):
     """Terminal lines on the nature of the stationary points and the planar s-cis cost of a diene."""
+    from .output.report import readiness_texts
+
     lines = []
     checked = [m for m in analysis.minima + analysis.maxima if m.imaginary_count is not None]
     if checked:
@@ -245,9 +278,8 @@ def _vibration_lines(analysis):
                                           if not wrong else
                                           "CHECK " + ", ".join(f"{m.angle_deg:.1f}° ({m.imaginary_count} imaginary)"
                                                                for m in wrong)))
-    for r in analysis.readiness:
-        lines.append(f"  diene at {r.temperature_k:g} K: planar s-cis costs ΔG {r.delta_g_kcal_mol:.2f} "
-                     f"(ΔE {r.delta_e_kcal_mol:.2f}) kcal/mol, Boltzmann factor {r.boltzmann_factor:.3g}")
+    if not symmetric_rotor:
+        lines += [f"  {text}" for text in readiness_texts(analysis)]
     return lines
 
 
@@ -258,11 +290,25 @@ def run_scan(args):
     options = _fit_options(args)
     options.check()
     settings = _settings(args)
-    level = None
+    level = refine_level = None
     if args.rescore:
         from .rescore import check_rescoring
 
         level = check_rescoring(args.rescore, settings)
+    if args.refine:
+        from .workflows import check_refinement
+
+        refine_level = check_refinement(args.refine, settings, args.refine_points, args.reference)
+        _check_processes(args.processes)
+        if args.reference:
+            from .molecule import load_molecule
+            from .reference import check_reference
+
+            molecule = load_molecule(args.molecule, charge=args.charge, unpaired_electrons=args.unpaired_electrons,
+                                     record=args.record)
+            check_reference(molecule.symbols, molecule.charge, molecule.unpaired_electrons)
+    elif args.reference:
+        raise InputError("--reference needs --refine LEVEL: the reference energies are computed at the refined structures")
     result = scan(
         args.molecule, bond=args.bond, name=args.name, charge=args.charge,
         unpaired_electrons=args.unpaired_electrons, record=args.record, settings=settings,
@@ -272,6 +318,10 @@ def run_scan(args):
         from .threads import usable_cores
 
         result = rescore_result(result, level, args.dft_threads or usable_cores())
+    if refine_level is not None:
+        from .workflows import refine_with_dft
+
+        result = refine_with_dft(result, refine_level, args.refine_points, args.reference, args.processes)
     out_dir = args.out or Path("results") / result.name
     write_results(result, out_dir)
     print(format_summary(result, out_dir))
@@ -293,6 +343,22 @@ def run_rescore(args):
     return 0
 
 
+def _check_processes(processes):
+    if processes is not None and processes < 1:
+        raise InputError("--processes must be at least 1")
+
+
+def run_refine(args):
+    from .workflows import refine_folder
+
+    _check_processes(args.processes)
+    result = refine_folder(args.folder, args.level, args.points, args.reference, args.processes)
+    for bond in result.bonds:
+        print("\n".join(refined_lines(result, bond)))
+    print(f"files: {args.folder}/ (summary.json, bond_<j-k>_profile.csv and figures updated)")
+    return 0
+
+
 def run_fit(args):
     from .workflows import fit_folder
 
@@ -306,16 +372,18 @@ def run_fit(args):
 
 
 def run_bonds(args):
-    from .molecule import find_conjugated_bonds, load_molecule
+    from .molecule import find_conjugated_bonds, load_molecule, numbered_smiles
 
     molecule = load_molecule(args.molecule, charge=args.charge, unpaired_electrons=args.unpaired_electrons,
                              record=args.record)
     bonds = find_conjugated_bonds(molecule)
-    print(f"{molecule.smiles}: {len(bonds)} conjugated single bond(s); atom numbers are 1-based, hydrogens last")
+    print(f"{numbered_smiles(molecule.mol)}: {len(bonds)} conjugated single bond(s); atom numbers are 1-based, "
+          "hydrogens last")
     symbols = molecule.symbols
     for bond in bonds:
         atoms = "-".join(f"{symbols[a]}{a + 1}" for a in bond.atoms)
-        print(f"  bond {bond.label:>7s}   dihedral {atoms}")
+        meaning = f"   0° = {bond.scis_meaning}" if bond.scis_meaning else ""
+        print(f"  bond {bond.label:>7s}   dihedral {atoms}{meaning}")
     return 0
 
 
@@ -325,6 +393,7 @@ def _batch_options(args):
     return BatchOptions(
         workers=args.workers, threads_per_worker=args.threads_per_worker, cluster=args.cluster,
         retry_failed=args.retry_failed, timeout_per_compound_s=args.timeout_per_compound, rescore=args.rescore,
+        refine=args.refine, refine_points=args.refine_points,
     )
 
 
@@ -375,6 +444,7 @@ def build_parser():
                              help="re-score the scan geometries with DFT: cheap, standard, careful or functional/basis "
                                   "(needs the [dft] extra)")
     scan_parser.add_argument("--dft-threads", type=int, default=None, help="threads for DFT (default: all cores)")
+    _add_refine_options(scan_parser, "--refine")
     scan_parser.add_argument("--fit-for", choices=["mmff94"],
                              help="also fit dihedral terms that complete this MM model (see 'fit')")
     _add_fit_options(scan_parser)
@@ -398,6 +468,12 @@ def build_parser():
                                 help="cheap, standard, careful, or functional[-d3bj|-d3zero|-d4]/basis")
     rescore_parser.add_argument("--threads", type=int, default=None, help="threads for DFT (default: all cores)")
     rescore_parser.set_defaults(handler=run_rescore)
+
+    refine_parser = commands.add_parser(
+        "refine", help="re-optimise a finished scan's structures at a DFT level (dihedral held) and analyse them")
+    refine_parser.add_argument("folder", type=Path, help="result folder of a scan")
+    _add_refine_options(refine_parser, "--level", required=True)
+    refine_parser.set_defaults(handler=run_refine)
 
     bonds_parser = commands.add_parser("bonds", help="list the conjugated single bonds a scan would cover")
     _add_molecule_options(bonds_parser)

@@ -6,9 +6,9 @@ from pathlib import Path
 
 import matplotlib.pyplot as plt
 
-from .output import atomic_write, bond_stem, figure_bytes, write_results
+from .output import STRUCTURE_NAME, atomic_write, bond_stem, figure_bytes, write_results
 from .output.html import html_report
-from .output.report import compound_rows, overview_figure, table_columns
+from .output.report import compound_card, compound_rows, overview_figure, table_columns
 from .store import RunStore, compound_folder, utc_now
 
 TABLE_NAME = "scan_table.csv"
@@ -35,7 +35,7 @@ def write_run_report(out_dir, rebuild_folders=False):
         results = {r["name"]: store.result(r["name"]) for r in records if r["status"] == "done"}
         counts = store.counts()
     extra = [key for r in records for key in r["extra"]]
-    rows, plots = [], {}
+    rows, plots, cards = [], {}, {}
     for record in records:
         result = results.get(record["name"])
         rows += compound_rows(record, result)
@@ -43,10 +43,14 @@ def write_run_report(out_dir, rebuild_folders=False):
             continue
         folder = compound_folder(out_dir, record["name"])
         images = [folder / f"{bond_stem(bond.label)}_profile.png" for bond in result.bonds]
-        complete = (folder / "summary.json").is_file() and all(image.is_file() for image in images)
+        drawing_png, drawing_svg = folder / f"{STRUCTURE_NAME}.png", folder / f"{STRUCTURE_NAME}.svg"
+        complete = (folder / "summary.json").is_file() and drawing_svg.is_file() and all(
+            image.is_file() for image in images)
         if rebuild_folders or not complete:
             write_results(result, folder)
         plots[record["name"]] = [(bond.label, image.read_bytes()) for bond, image in zip(result.bonds, images)]
+        cards[record["name"]] = {**compound_card(result), "drawing_svg": drawing_svg.read_bytes(),
+                                 "drawing_png": drawing_png.read_bytes() if drawing_png.is_file() else None}
 
     columns = table_columns(settings["temperatures_k"], _distinct(extra))
 
@@ -72,7 +76,7 @@ def write_run_report(out_dir, rebuild_folders=False):
     caution = " ".join(_distinct(r.caution for r in results.values())) or NO_RESULT_CAUTION
     page = html_report(
         title=f"Torsion scans: {out_dir.name}", run_info=run_info, settings=settings, caution=caution,
-        columns=columns, rows=rows, plots=plots, overview_png=overview,
+        columns=columns, rows=rows, plots=plots, overview_png=overview, cards=cards,
     )
     report = out_dir / REPORT_NAME
     atomic_write(report, lambda p: p.write_text(page, encoding="utf-8"))

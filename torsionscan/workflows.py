@@ -85,15 +85,16 @@ def check_refinement(level_text, settings, points_mode="all", reference=None):
     return level
 
 
-def refine_with_dft(result, level, points_mode="all", reference=None, processes=None):
+def refine_with_dft(result, level, points_mode="all", reference=None, processes=None, threads=None):
     """The ScanResult refined at a DFT level (and with the coupled-cluster reference if asked);
-    processes: parallel optimisations (default all usable cores), each with cores/processes threads."""
+    processes: parallel optimisations (default all usable cores), each with `threads` threads
+    (default cores / processes)."""
     from .engines.dft import DftEngine
 
     if result.settings.solvent:
         raise InputError("refinement is gas phase only: the scan used an implicit solvent; refine a gas-phase scan")
     processes = processes or usable_cores()
-    threads = max(1, usable_cores() // processes)
+    threads = threads or max(1, usable_cores() // processes)
     if reference is not None:
         check_reference(result.symbols, result.charge, result.unpaired_electrons)
     factory = functools.partial(DftEngine, result.symbols, level, result.charge, result.unpaired_electrons, threads)

@@ -1,4 +1,4 @@
-"""Writers for scan results: summary JSON, profile CSV, XYZ/SDF structures, figures.
+"""Writers for scan results: summary JSON, profile CSV, XYZ/SDF structures, figures, drawings.
 
 A result folder is written from a ScanResult alone (write_results), so a stored run can
 rebuild it. Every file is written to a temporary name in the folder and moved into place,
@@ -12,6 +12,7 @@ from pathlib import Path
 
 import matplotlib.pyplot as plt
 
+from .drawing import molecule_drawing
 from .plot import populations_figure, profile_figure
 from .structures import minima_sdf_text, scan_xyz_text
 from .summary import write_profile_table, write_summary
@@ -64,16 +65,37 @@ def render_figures(result):
     return rendered
 
 
+STRUCTURE_NAME = "structure"  # the compound's drawing: structure.svg and structure.png
+
+
+def render_drawings(result):
+    """{file name: bytes} of the numbered 2-D drawings of a ScanResult (output.drawing): the
+    compound's structure.svg/.png with the first bond's dihedral highlighted (none without a
+    bond), and bond_<j-k>_structure.svg/.png per bond. No PNG where RDKit has no Cairo drawer."""
+    wanted = [(STRUCTURE_NAME, result.bonds[0].dihedral_atoms if result.bonds else None)]
+    wanted += [(f"{bond_stem(bond.label)}_{STRUCTURE_NAME}", bond.dihedral_atoms) for bond in result.bonds]
+    files = {}
+    for stem, atoms in wanted:
+        drawing = molecule_drawing(result.mol, atoms)
+        files[f"{stem}.svg"] = drawing["svg"].encode("utf-8")
+        if drawing["png"] is not None:
+            files[f"{stem}.png"] = bytes(drawing["png"])
+    return files
+
+
 def write_results(result, out_dir, figures=None):
     """Write every file of a ScanResult into out_dir (created if needed) and return its Path.
 
-    Per bond: bond_<j-k>_profile.csv, _scan.xyz, _minima.sdf, _profile.png/.svg, _populations.png
-    and, when the bond has a torsion fit, its files (output.forcefield); then summary.json.
+    Per bond: bond_<j-k>_profile.csv, _scan.xyz, _minima.sdf, _profile.png/.svg, _populations.png,
+    _structure.svg/.png and, when the bond has a torsion fit, its files (output.forcefield); the
+    compound's structure.svg/.png (render_drawings); then summary.json.
     figures: already rendered figures (render_figures); drawn here when not given.
     """
     out_dir = Path(out_dir)
     out_dir.mkdir(parents=True, exist_ok=True)
     figures = render_figures(result) if figures is None else figures
+    for name, data in render_drawings(result).items():
+        atomic_write(out_dir / name, lambda p, d=data: p.write_bytes(d))
     for bond in result.bonds:
         stem = out_dir / bond_stem(bond.label)
         atomic_write(f"{stem}_profile.csv", lambda p, b=bond: write_profile_table(b, p))

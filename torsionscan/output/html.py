@@ -1,8 +1,9 @@
 """A self-contained HTML report of a batch run: one page, no external resources.
 
 The page holds the run information, the settings, the method caution, a sortable results table
-(one row per compound and bond) and one section per compound with its profile plots embedded as
-base64 PNG. `html_report` is a pure function of its inputs; writing the file is the caller's job.
+(one row per compound and bond) and one section per compound: its card (numbered SMILES, the
+numbered drawing, what each bond's numbers say) and its profile plots, every image embedded as
+base64 data. `html_report` is a pure function of its inputs; writing the file is the caller's job.
 """
 
 import base64
@@ -57,6 +58,13 @@ table.results tr.failed:hover { background: #f7e0de; }
 table.results tr.failed td.col-status { color: #9b2c2c; font-weight: 600; }
 .failure { border-left: 4px solid #c96a6a; background: #fbeceb; padding: 0.4rem 0.8rem; margin: 0.5rem 0; }
 .plots { display: flex; flex-wrap: wrap; gap: 0.5rem 1.5rem; }
+.card { display: flex; flex-wrap: wrap; gap: 0.5rem 1.5rem; align-items: flex-start; }
+.card figure.structure { flex: 0 0 auto; }
+.card .facts { flex: 1 1 28rem; font-size: 0.9rem; }
+.card .facts h4 { font-size: 0.95rem; margin: 0.4rem 0 0.2rem; font-weight: 600; }
+.card .facts ul { margin: 0.1rem 0 0.4rem; padding-left: 1.2rem; }
+.smiles { font-family: ui-monospace, SFMono-Regular, Menlo, Consolas, monospace; font-size: 0.85rem;
+          word-break: break-all; }
 .plots figure { flex: 0 1 34rem; }
 .back { font-size: 0.8rem; }
 footer { margin-top: 2.5rem; padding-top: 0.5rem; border-top: 1px solid #ddd; font-size: 0.8rem; color: #666; }
@@ -198,9 +206,42 @@ def _count(n, word):
     return f"{n} {word}" + ("" if n == 1 else "s")
 
 
-def _img(png, alt):
-    data = base64.b64encode(bytes(png)).decode("ascii")
-    return f'<img src="data:image/png;base64,{data}" alt="{_e(alt)}">'
+def _img(data, alt, mime="image/png"):
+    encoded = base64.b64encode(bytes(data)).decode("ascii")
+    return f'<img src="data:{mime};base64,{encoded}" alt="{_e(alt)}">'
+
+
+def _fact_items(texts):
+    """<li> items of a card's sentences; a (heading, [sentences]) item becomes a nested list."""
+    items = []
+    for text in texts:
+        if isinstance(text, (tuple, list)):
+            heading, inner = text
+            items.append(f"<li>{_e(heading)}<ul>{''.join(f'<li>{_e(t)}</li>' for t in inner)}</ul></li>")
+        else:
+            items.append(f"<li>{_e(text)}</li>")
+    return "".join(items)
+
+
+def _card(name, card):
+    """A compound's card: numbered SMILES, the drawing (PNG, else SVG, as data) and each bond's sentences."""
+    lines = []
+    if card.get("smiles"):
+        lines.append(f'<p class="smiles">{_e(card["smiles"])}</p>')
+    lines.append('<div class="card">')
+    alt = f"structure of {name} with atom numbers"
+    if card.get("drawing_png"):
+        lines.append(f'<figure class="structure">{_img(card["drawing_png"], alt)}</figure>')
+    elif card.get("drawing_svg"):
+        lines.append(f'<figure class="structure">{_img(card["drawing_svg"], alt, "image/svg+xml")}</figure>')
+    bonds = list(card.get("bonds", ()))
+    if bonds:
+        lines.append('<div class="facts">')
+        for label, texts in bonds:
+            lines.append(f"<h4>bond {_e(label)}</h4><ul>{_fact_items(texts)}</ul>")
+        lines.append("</div>")
+    lines.append("</div>")
+    return "\n".join(lines)
 
 
 def _results_table(columns, rows, slugs):
@@ -237,10 +278,12 @@ def _results_table(columns, rows, slugs):
     return "\n".join(lines)
 
 
-def _compound_section(name, slug, compound_rows, compound_plots):
+def _compound_section(name, slug, compound_rows, compound_plots, card=None):
     failed = [row for row in compound_rows if row.get("status") == "failed"]
     section_class = "compound failed" if failed and not compound_plots else "compound"
     lines = [f'<section id="c-{slug}" class="{section_class}">', f"<h3>{_e(name)}</h3>"]
+    if card:
+        lines.append(_card(name, card))
     for row in failed:
         bond = row.get("bond")
         reason = row.get("reason") or "no reason recorded"
@@ -261,13 +304,16 @@ def _compound_section(name, slug, compound_rows, compound_plots):
     return "\n".join(lines)
 
 
-def html_report(*, title, run_info, settings, caution, columns, rows, plots, overview_png=None) -> str:
+def html_report(*, title, run_info, settings, caution, columns, rows, plots, overview_png=None, cards=None) -> str:
     """One self-contained HTML page (opens offline) for a batch run.
 
     `rows` are dicts keyed by `columns` (plus at least name, bond, status and reason); `plots` maps
-    a compound name to [(bond label, PNG bytes)]. The footer shows run_info["generated"] (or
-    "updated") when present; the clock is never read here.
+    a compound name to [(bond label, PNG bytes)]; `cards` (optional) maps a compound name to its
+    card: {"smiles": str, "bonds": [(bond label, sentences as output.report.bond_texts)],
+    "drawing_png": bytes or None, "drawing_svg": bytes or None}. The footer shows
+    run_info["generated"] (or "updated") when present; the clock is never read here.
     """
+    cards = cards or {}
     names = list(dict.fromkeys(row.get("name") for row in rows))
     slugs = _slugs(names)
     n_failed = sum(1 for row in rows if row.get("status") == "failed")
@@ -306,7 +352,7 @@ def html_report(*, title, run_info, settings, caution, columns, rows, plots, ove
         parts.append("<h2>Compounds</h2>")
     for name in names:
         compound_rows = [row for row in rows if row.get("name") == name]
-        parts.append(_compound_section(name, slugs[name], compound_rows, list(plots.get(name, ()))))
+        parts.append(_compound_section(name, slugs[name], compound_rows, list(plots.get(name, ())), cards.get(name)))
 
     parts.append("</main>")
     generated = run_info.get("generated", run_info.get("updated"))

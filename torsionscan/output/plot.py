@@ -13,13 +13,17 @@ matplotlib.use("Agg")
 import matplotlib.pyplot as plt  # noqa: E402
 import numpy as np  # noqa: E402
 
+from ..rotor import rotor_populations  # noqa: E402
 from ..thermo import SCIS_LIMIT_DEG, region_populations  # noqa: E402
+from .report import SYMMETRIC_ROTOR_REASON, leading_answer, symmetric_rotor_shape  # noqa: E402
 
 _SCIS_SHADE = "#dfe9f5"
 _STRANS_SHADE = "#f6eadb"
 _WINDOW_SHADE = "#b9d0ea"
 _RESCORED = "#d95f02"
 _REFINED = "#1b9e77"
+_ROTOR = "#7b3294"
+ROTOR_CURVE_TEMPERATURES = 21  # quantum-rotor points over the temperature range of the populations figure
 
 
 def _dihedral_text(result, bond):
@@ -48,10 +52,12 @@ def profile_figure(result, bond, title=None):
         lower = None
     window = result.settings.scis_window_deg
     limit = SCIS_LIMIT_DEG
-    ax.axvspan(-limit, limit, color=_SCIS_SHADE, zorder=0, label=f"s-cis region (|φ| < {limit:g}°)")
-    ax.axvspan(-window, window, color=_WINDOW_SHADE, zorder=0, label=f"near-planar s-cis window (|φ| ≤ {window:g}°)")
-    ax.axvspan(-180, -limit, color=_STRANS_SHADE, zorder=0, label=f"s-trans region (|φ| > {limit:g}°)")
-    ax.axvspan(limit, 180, color=_STRANS_SHADE, zorder=0)
+    if not bond.symmetric_rotor:  # a symmetric rotor's circle has no s-cis and s-trans halves
+        ax.axvspan(-limit, limit, color=_SCIS_SHADE, zorder=0, label=f"s-cis region (|φ| < {limit:g}°)")
+        ax.axvspan(-window, window, color=_WINDOW_SHADE, zorder=0,
+                   label=f"near-planar s-cis window (|φ| ≤ {window:g}°)")
+        ax.axvspan(-180, -limit, color=_STRANS_SHADE, zorder=0, label=f"s-trans region (|φ| > {limit:g}°)")
+        ax.axvspan(limit, 180, color=_STRANS_SHADE, zorder=0)
 
     dense = np.linspace(-180, 180, 721)
     ax.plot(dense, series.value(dense), color="#333333", lw=1.5,
@@ -90,13 +96,13 @@ def profile_figure(result, bond, title=None):
                 ax.annotate(label, (x, e), textcoords="offset points", xytext=(0, offset), ha=align,
                             fontsize=8, color=colour)
 
-    for p in analysis.populations:
-        ax.plot([], [], " ", label=(f"{p.temperature_k:g} K: s-cis {100 * p.s_cis:.1f}%, "
-                                    f"s-trans {100 * p.s_trans:.1f}%, window {100 * p.scis_window:.1f}%"))
+    for label in population_legend(bond):
+        ax.plot([], [], " ", label=label)
     ax.set_xlim(-180, 180)
     ax.set_xticks(range(-180, 181, 45))
     ax.set_ylabel("relative energy / kcal mol⁻¹")
-    axis_label = "dihedral φ / degrees   (0 = s-cis, ±180 = s-trans)"
+    axis_label = ("dihedral φ / degrees   (0 and ±180 = planar)" if bond.symmetric_rotor
+                  else "dihedral φ / degrees   (0 = s-cis, ±180 = s-trans)")
     if lower is not None:
         _conjugation_panel(lower, bond)
         lower.set_xlabel(axis_label)
@@ -107,6 +113,25 @@ def profile_figure(result, bond, title=None):
     ax.legend(fontsize=7, loc="lower center", bbox_to_anchor=(0.5, 1.06), ncol=2, frameon=False)
     fig.tight_layout()
     return fig
+
+
+def population_legend(bond):
+    """Legend lines of a BondScan's populations: the leading answer per temperature after the name of
+    its model, or, for a symmetric rotor, why there is no s-cis split and its twist."""
+    if bond.symmetric_rotor:
+        twist, _, _ = symmetric_rotor_shape(bond.profile)
+        return ["symmetric rotor, no s-cis/s-trans split: E(φ) = E(180° − φ)"
+                + ("" if twist is None else f"; twist {twist:.1f}°")]
+    entries, model = leading_answer(bond.profile)
+    if not entries:
+        return []
+    lines = [f"populations: {model}"]
+    for p in entries:
+        line = f"{p.temperature_k:g} K: s-cis {100 * p.s_cis:.1f}%, s-trans {100 * p.s_trans:.1f}%"
+        if getattr(p, "scis_window", None) is not None:
+            line += f", window {100 * p.scis_window:.1f}%"
+        lines.append(line)
+    return lines
 
 
 def _rescored_overlay(ax, bond, dense):
@@ -165,29 +190,55 @@ def _conjugation_panel(ax, bond):
     ax.set_title("conjugation along the scan: Wiberg bond order of the scanned bond and HOMO–LUMO gap", fontsize=8)
 
 
-def populations_figure(result, bond):
-    """s-cis and near-planar s-cis window populations (%) against temperature (K, over
-    result.settings.temperature_range_k), integrated over the fit, with the free-energy (RRHO)
-    s-cis populations at the run's temperatures where computed."""
+def rotor_curve(bond, temperatures_k):
+    """(temperatures, s-cis fractions) of the torsion as a quantum hindered rotor on the fit
+    (rotor.rotor_populations with ProfileAnalysis.rotor_inertia_amu_bohr2), or None when the
+    moment of inertia is not known."""
+    inertia = bond.profile.rotor_inertia_amu_bohr2
+    if bond.profile.fit is None or not (math.isfinite(inertia) and inertia > 0):
+        return None
     series = bond.profile.fit.series
-    window = result.settings.scis_window_deg
+    return list(temperatures_k), [rotor_populations(series, inertia, t).s_cis for t in temperatures_k]
+
+
+def populations_figure(result, bond):
+    """s-cis populations (%) against temperature (K, over result.settings.temperature_range_k):
+    the classical integral over the fit and its near-planar window, the quantum hindered rotor on
+    the fit (ROTOR_CURVE_TEMPERATURES points, when the moment of inertia is known), and at the
+    run's temperatures the rotor-plus-other-modes free energies and the all-harmonic (RRHO)
+    estimate where computed. A symmetric rotor gets a note instead of curves."""
     temperature_range = tuple(result.settings.temperature_range_k)
-    temperatures = np.linspace(*temperature_range, 41)
-    integrated = [region_populations(series.value, t, window) for t in temperatures]
     fig, ax = plt.subplots(figsize=(7.0, 4.5), dpi=110)
-    ax.plot(temperatures, [100 * p.s_cis for p in integrated], "-", color="#1f5fa8", lw=1.8,
-            label=f"s-cis (|φ| < {SCIS_LIMIT_DEG:g}°), integrated over the profile")
-    ax.plot(temperatures, [100 * p.scis_window for p in integrated], "--", color="#1f5fa8", lw=1.2,
-            label=f"near-planar s-cis window (|φ| ≤ {window:g}°)")
-    rrho = [(r.temperature_k, 100 * r.s_cis) for r in bond.profile.rrho_populations]
-    if rrho:
-        ax.plot(*zip(*rrho), "D", color="#b15928", ms=6, label="s-cis from free energies of the minima (RRHO)")
     ax.set_xlim(*temperature_range)
-    ax.set_ylim(0, None)
     ax.set_xlabel("temperature / K")
     ax.set_ylabel("population / %")
     ax.set_title(f"{_dihedral_text(result, bond)} — populations vs temperature ({result.method} estimate)",
                  fontsize=9)
+    if bond.symmetric_rotor:
+        ax.set_ylim(0, 100)
+        ax.text(0.5, 0.5, f"symmetric rotor: {SYMMETRIC_ROTOR_REASON}", transform=ax.transAxes, ha="center",
+                va="center", fontsize=8, wrap=True)
+        fig.tight_layout()
+        return fig
+    series = bond.profile.fit.series
+    window = result.settings.scis_window_deg
+    temperatures = np.linspace(*temperature_range, 41)
+    integrated = [region_populations(series.value, t, window) for t in temperatures]
+    ax.plot(temperatures, [100 * p.s_cis for p in integrated], "-", color="#1f5fa8", lw=1.8,
+            label=f"s-cis (|φ| < {SCIS_LIMIT_DEG:g}°), classical integral over the profile")
+    ax.plot(temperatures, [100 * p.scis_window for p in integrated], "--", color="#1f5fa8", lw=1.2,
+            label=f"near-planar s-cis window (|φ| ≤ {window:g}°), classical")
+    curve = rotor_curve(bond, np.linspace(*temperature_range, ROTOR_CURVE_TEMPERATURES))
+    if curve is not None:
+        ax.plot(curve[0], [100 * x for x in curve[1]], "-.", color=_ROTOR, lw=1.5,
+                label="s-cis, quantum hindered rotor on the profile")
+    free = [(r.temperature_k, 100 * r.s_cis) for r in bond.profile.free_energies]
+    if free:
+        ax.plot(*zip(*free), "o", color=_ROTOR, ms=6, label="s-cis, quantum rotor with harmonic other modes")
+    rrho = [(r.temperature_k, 100 * r.s_cis) for r in bond.profile.rrho_populations]
+    if rrho:
+        ax.plot(*zip(*rrho), "D", color="#b15928", ms=6, label="s-cis, all-harmonic free energies of the minima")
+    ax.set_ylim(0, None)
     ax.legend(fontsize=8, frameon=False)
     fig.tight_layout()
     return fig
