@@ -66,7 +66,7 @@ def rotor_result():
 def _classical(result):
     """The result with no quantum-rotor fields (what a scan without a moment of inertia gives)."""
     bonds = tuple(dataclasses.replace(b, profile=dataclasses.replace(
-        b.profile, rotor_inertia_amu_bohr2=math.nan, rotor=(), wells=(), free_energies=(), interconversion=()))
+        b.profile, rotor_inertia_amu_bohr2=None, rotor=(), wells=(), free_energies=(), interconversion=()))
         for b in result.bonds)
     return dataclasses.replace(result, bonds=bonds)
 

@@ -219,7 +219,7 @@ class ProfileAnalysis:
     rrho_populations: tuple[RrhoPopulations, ...] = ()
     planar_scis: StationaryRecord | None = None  # dienes: the planar s-cis structure (with frequencies)
     readiness: tuple[Readiness, ...] = ()  # dienes, with frequencies
-    rotor_inertia_amu_bohr2: float = float("nan")  # reduced moment of the torsion at the global minimum
+    rotor_inertia_amu_bohr2: float | None = None  # reduced moment of the torsion at the global minimum
     rotor: tuple[RotorPopulations, ...] = ()  # the torsion as a 1-D quantum hindered rotor on the fit
     wells: tuple[WellFundamental, ...] = ()  # torsional fundamental (and tunnelling splitting) per well
     free_energies: tuple[ConformerFreeEnergies, ...] = ()  # rotor + other modes (harmonic, torsion projected)

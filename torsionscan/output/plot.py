@@ -195,7 +195,7 @@ def rotor_curve(bond, temperatures_k):
     (rotor.rotor_populations with ProfileAnalysis.rotor_inertia_amu_bohr2), or None when the
     moment of inertia is not known."""
     inertia = bond.profile.rotor_inertia_amu_bohr2
-    if bond.profile.fit is None or not (math.isfinite(inertia) and inertia > 0):
+    if bond.profile.fit is None or inertia is None:
         return None
     series = bond.profile.fit.series
     return list(temperatures_k), [rotor_populations(series, inertia, t).s_cis for t in temperatures_k]
