@@ -109,7 +109,7 @@ def test_failed_points_are_recorded_and_the_rest_is_analysed():
     assert len(bond.profile.minima) == 3  # s-trans and the gauche pair are still found from the other points
 
 
-def test_a_failure_at_the_start_structure_is_survived_by_the_other_starts():
+def test_a_failure_at_every_start_structure_stops_the_scan_with_a_calculation_error():
     # every evaluation near the minimum fails: no start structure can be relaxed
     with pytest.raises(torsionscan.CalculationError):
         _model_scan("C=CC=C", fail_near_deg=tuple(range(-180, 180, 2)), fail_tolerance_deg=1.5)

@@ -129,7 +129,7 @@ def _refined(result, job):
     try:
         return refine_with_dft(result, parse_level(job["refine"]), job["refine_points"], processes=1,
                                threads=job["threads"]), ""
-    except TorsionScanError as error:  # keep the finished scan; say why the refinement is missing
+    except (TorsionScanError, ValueError) as error:  # keep the finished scan; say why the refinement is missing
         return result, f"refinement at {job['refine']} failed: {error}"
 
 

@@ -2,7 +2,7 @@
 the constraints that hold it there, the order of visits, and mirror folding.
 
 Grid points are tuples of integer indices, one per dihedral (angle = index * step); the driver
-in scan.py only ever handles such tuples. Coordinates are (N, 3) arrays in Bohr, Hessians
+in driver.py only ever handles such tuples. Coordinates are (N, 3) arrays in Bohr, Hessians
 (3N, 3N) in Hartree/Bohr^2.
 
 Visit plan (one dihedral). Chiral molecules: one leg up and one leg down round the full circle

@@ -18,9 +18,9 @@ import numpy as np
 from .version import __version__
 from .analysis import analyse_profile, display_angle, in_arc, is_symmetric_rotor_profile
 from .coordinate import DihedralConstraint, ScanCoordinate, mirror, mirror_hessian
-from .engines import CONJUGATION, make_engine
+from .engines import CHARGE, CONJUGATION, SOLVENT, SPIN, make_engine
 from .errors import CalculationError, InputError
-from .freeenergy import add_free_energies, interconversion, torsion_as_rotor
+from .freeenergy import add_free_energies, rotor_and_rates
 from .molecule import (
     find_conjugated_bonds, is_diene_bond, load_molecule, select_bond, side_atoms, starting_structures,
 )
@@ -33,7 +33,7 @@ log = logging.getLogger(__name__)
 
 
 def relax_start(molecule, relaxer, settings):
-    """Lowest GFN-xTB minimum among the seeded start structures: (coords_bohr, energy, hessian, evaluations)."""
+    """Lowest minimum among the seeded start structures: (coords_bohr, energy, hessian, evaluations)."""
     best = None
     evaluations = 0
     errors = []
@@ -241,12 +241,20 @@ def scan_bond(molecule, bond, relaxer, start, settings):
             log.warning("dihedral %s: frequencies failed (%s); free energies left out", bond.label, error)
         bond_scan = replace(bond_scan, frequency_gradient_evaluations=relaxer.engine.evaluations - scanned,
                             frequency_wall_time_s=time.perf_counter() - started)
-    masses = [atom.GetMass() for atom in molecule.mol.GetAtoms()]
-    profile = torsion_as_rotor(bond_scan.profile, masses, bond.atoms, scanner.coordinate.moving[0],
-                               settings.temperatures_k, settings.scis_window_deg)
-    profile = replace(profile, interconversion=interconversion(profile, settings.temperatures_k))
+    profile = rotor_and_rates(bond_scan.profile, molecule.mol, bond.atoms, settings.temperatures_k,
+                              settings.scis_window_deg)
     return replace(bond_scan, profile=profile, scis_meaning=bond.scis_meaning,
                    symmetric_rotor=bond.symmetric_rotor_candidate and is_symmetric_rotor_profile(profile.fit))
+
+
+def _check_capabilities(engine, molecule, settings):
+    """InputError when a given engine cannot do what the molecule and settings ask."""
+    needed = [(SOLVENT, settings.solvent, f"an implicit solvent ({settings.solvent})"),
+              (CHARGE, molecule.charge, f"a charge of {molecule.charge}"),
+              (SPIN, molecule.unpaired_electrons, f"{molecule.unpaired_electrons} unpaired electron(s)")]
+    for capability, asked, what in needed:
+        if asked and capability not in engine.capabilities:
+            raise InputError(f"the {engine.name} engine cannot handle {what}; choose another engine or drop it")
 
 
 def scan(source, *, bond=None, name=None, charge=None, unpaired_electrons=0, record=1, settings=None,
@@ -267,7 +275,9 @@ def scan(source, *, bond=None, name=None, charge=None, unpaired_electrons=0, rec
         raise InputError(
             f"{molecule.smiles}: no conjugated single bond found; pick a bond with --bond j-k (1-based atom numbers)"
         )
-    if engine is None:
+    if engine is not None:
+        _check_capabilities(engine, molecule, settings)
+    else:
         engine = make_engine(
             molecule.numbers, charge=molecule.charge, unpaired_electrons=molecule.unpaired_electrons,
             method=settings.method, backend=settings.engine, solvent=settings.solvent,

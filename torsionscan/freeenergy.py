@@ -9,6 +9,7 @@ with Grimme's quasi-RRHO entropy for modes below 100 cm^-1 (S. Grimme, Chem. Eur
 separately instead), 1 atm. Energies in Hartree inside, kcal/mol in the records.
 """
 
+import logging
 import math
 from dataclasses import dataclass, replace
 
@@ -17,6 +18,8 @@ import numpy as np
 from . import geometry
 from .errors import CalculationError
 from .coordinate import DihedralConstraint
+from .errors import InputError
+from .molecule import side_atoms
 from .records import Interconversion, Readiness, RrhoPopulations, StationaryRecord
 from .rotor import (
     BOLTZMANN_WINDOW_RT, conformer_free_energies, eyring_rate, half_life_s, reduced_moment_of_inertia, region_weights,
@@ -25,6 +28,8 @@ from .rotor import (
 from .thermo import is_s_cis
 from .rrho import conformer_populations, harmonic_frequencies, rrho_thermo
 from .units import HARTREE_KCAL_MOL, rt_kcal_mol
+
+log = logging.getLogger(__name__)
 
 FD_STEP_BOHR = 0.005
 QUASI_HARMONIC_CUTOFF_CM1 = 100.0
@@ -163,7 +168,23 @@ def _region_minimum(minima, s_cis):
     return min(chosen, key=lambda m: m.energy_hartree, default=None)
 
 
-def torsion_as_rotor(profile, masses_amu, dihedral_atoms, moving_atoms, temperatures_k, window_deg):
+def rotor_and_rates(profile, mol, dihedral_atoms, temperatures_k, window_deg, structure_bohr=None):
+    """torsion_as_rotor and interconversion of a profile of the dihedral of an RDKit molecule (with
+    hydrogens); structure_bohr: where to take the moment of inertia when the profile's minima have
+    no structure (interpolated); the profile unchanged, with a warning, when the rotor cannot be solved."""
+    masses = [atom.GetMass() for atom in mol.GetAtoms()]
+    moving = side_atoms(mol, dihedral_atoms[1], dihedral_atoms[2])
+    try:
+        profile = torsion_as_rotor(profile, masses, dihedral_atoms, moving, temperatures_k, window_deg,
+                                   structure_bohr)
+        return replace(profile, interconversion=interconversion(profile, temperatures_k))
+    except (InputError, ValueError, np.linalg.LinAlgError) as error:
+        log.warning("hindered-rotor treatment failed (%s); classical populations lead", error)
+        return profile
+
+
+def torsion_as_rotor(profile, masses_amu, dihedral_atoms, moving_atoms, temperatures_k, window_deg,
+                     structure_bohr=None):
     """The ProfileAnalysis with the torsion treated as a 1-D quantum hindered rotor on its fit.
 
     The reduced moment of inertia is taken at the global minimum (ROTOR_MOMENT); per temperature
@@ -172,10 +193,11 @@ def torsion_as_rotor(profile, masses_amu, dihedral_atoms, moving_atoms, temperat
     quasi-harmonic, torsion projected out at each region's lowest minimum, ZPE included).
     """
     lowest = profile.lowest_minimum()
-    if profile.fit is None or lowest is None or lowest.coords_bohr is None:
+    coords = lowest.coords_bohr if lowest is not None and lowest.coords_bohr is not None else structure_bohr
+    if profile.fit is None or coords is None:
         return profile
     _, j, k, _ = dihedral_atoms
-    inertia = reduced_moment_of_inertia(masses_amu, lowest.coords_bohr, j, k, moving_atoms, definition=ROTOR_MOMENT)
+    inertia = reduced_moment_of_inertia(masses_amu, coords, j, k, moving_atoms, definition=ROTOR_MOMENT)
     series = profile.fit.series
     rotor = tuple(rotor_populations(series, inertia, t, window_deg) for t in temperatures_k)
     free = ()

@@ -406,9 +406,9 @@ def select_bond(molecule, spec):
     return torsion
 
 
-def side_atoms(molecule, j, k):
-    """Indices of the atoms on k's side of bond j-k (including k)."""
-    mol = molecule.mol
+def side_atoms(mol, j, k):
+    """Indices of the atoms on k's side of bond j-k (including k) of an RDKit molecule (or a Molecule)."""
+    mol = getattr(mol, "mol", mol)
     fragmented = Chem.FragmentOnBonds(mol, [mol.GetBondBetweenAtoms(j, k).GetIdx()], addDummies=False)
     for fragment in Chem.GetMolFrags(fragmented):
         if k in fragment:

@@ -319,8 +319,8 @@ class RefinedProfile:
     reference_label: str = ""
 
     def reference_relative_kcal_mol(self, point):
-        """A ReferencePoint's energy relative to the lowest reference minimum, kcal/mol."""
-        lowest = min(p.energy.energy_hartree for p in self.reference if p.kind == "minimum")
+        """A ReferencePoint's energy relative to the lowest reference minimum, kcal/mol (NaN without one)."""
+        lowest = min((p.energy.energy_hartree for p in self.reference if p.kind == "minimum"), default=math.nan)
         return (point.energy.energy_hartree - lowest) * HARTREE_KCAL_MOL
 
 

@@ -27,7 +27,7 @@ from .analysis import barriers_between, display_angle
 from .coordinate import DihedralConstraint
 from .driver import BondScanner
 from .errors import CalculationError, InputError
-from .freeenergy import interconversion, readiness, rrho_populations, torsion_as_rotor
+from .freeenergy import readiness, rotor_and_rates, rrho_populations
 from .geometry import dihedral
 from .molecule import Molecule, TorsionBond, is_diene_bond
 from .records import ProfileAnalysis, ReferencePoint, RefinedProfile, ScanPoint, StationaryRecord
@@ -38,8 +38,8 @@ from .rescore import disagreement
 from .units import wrap_deg
 
 POINT_MODES = ("all", "stationary")
-THERMAL_NOTE = ("thermal corrections (G - E) of the scan's stationary point of the same kind nearest in angle, "
-                "carried over: no Hessian is computed at the refined level")
+THERMAL_NOTE = ("thermal corrections (G - E) and frequencies of the scan's stationary point of the same kind "
+                "nearest in angle, carried over: no Hessian is computed at the refined level")
 
 
 def _optimise(job):
@@ -65,7 +65,9 @@ def _optimise_all(jobs, processes):
 
 
 def _carried_over(records, scanned):
-    """records with the thermal corrections of the scanned record of the same kind nearest in angle."""
+    """records with the thermal corrections (and frequencies, for rates) of the scanned record of the
+    same kind nearest in angle; records whose refinement failed (no finite energy) are left out."""
+    records = tuple(r for r in records if math.isfinite(r.energy_hartree))
     carried = []
     for record in records:
         same = [s for s in scanned if s.kind == record.kind and s.gibbs_corrections_kcal_mol]
@@ -73,7 +75,9 @@ def _carried_over(records, scanned):
             return records, False
         source = min(same, key=lambda s: abs(wrap_deg(s.angle_deg - record.angle_deg)))
         carried.append(replace(record, gibbs_corrections_kcal_mol=source.gibbs_corrections_kcal_mol,
-                               other_modes_gibbs_kcal_mol=source.other_modes_gibbs_kcal_mol))
+                               other_modes_gibbs_kcal_mol=source.other_modes_gibbs_kcal_mol,
+                               frequencies_cm1=source.frequencies_cm1, imaginary_count=source.imaginary_count,
+                               imaginary_along_torsion=source.imaginary_along_torsion))
     return tuple(carried), True
 
 
@@ -85,7 +89,7 @@ def _with_free_energies(analysis, scanned, planar, temperatures_k):
         return replace(analysis, minima=minima, maxima=maxima, planar_scis=planar)
     update = dict(minima=minima, maxima=maxima, rrho_populations=rrho_populations(minima, temperatures_k),
                   planar_scis=planar)
-    if planar is not None and scanned.planar_scis is not None:
+    if planar is not None and math.isfinite(planar.energy_hartree) and scanned.planar_scis is not None:
         planar = replace(planar, gibbs_corrections_kcal_mol=scanned.planar_scis.gibbs_corrections_kcal_mol)
         update.update(planar_scis=planar, readiness=readiness(minima, planar, temperatures_k))
     return replace(analysis, **update)
@@ -132,10 +136,8 @@ def _refine_all(result, bond, engine_factory, processes):
             planar = _planar_record(at_zero.energy_hartree, at_zero.coords_bohr, at_zero.converged,
                                     "grid point held at 0 deg")
     analysis = _with_free_energies(analysis, bond.profile, planar, settings.temperatures_k)
-    masses = [atom.GetMass() for atom in result.mol.GetAtoms()]
-    analysis = torsion_as_rotor(analysis, masses, bond.dihedral_atoms, scanner.coordinate.moving[0],
-                                settings.temperatures_k, settings.scis_window_deg)
-    analysis = replace(analysis, interconversion=interconversion(analysis, settings.temperatures_k))
+    analysis = rotor_and_rates(analysis, result.mol, bond.dihedral_atoms, settings.temperatures_k,
+                               settings.scis_window_deg)
     verdict = disagreement(bond, analysis, tuple(energies), result.method)
     evaluations = sum(o["evaluations"] for o in outcomes) + engine.evaluations
     return points, analysis, verdict, evaluations
@@ -219,13 +221,17 @@ def add_reference(result, processes=1, threads=None):
         analysis = bond.refined.analysis
         records = [r for r in (*analysis.minima, *analysis.maxima, analysis.planar_scis)
                    if r is not None and r.coords_bohr is not None and r.converged]
-        jobs = [(result.symbols, r.coords_bohr, result.charge, threads) for r in records]
+        # a mirror image has the same energy: one calculation per |angle| on a symmetric profile
+        key = (lambda r: (r.kind, round(abs(r.angle_deg), 1))) if bond.symmetric else (lambda r: (r.kind, r.angle_deg))
+        distinct = list({key(r): r for r in records}.values())
+        jobs = [(result.symbols, r.coords_bohr, result.charge, threads) for r in distinct]
         if processes > 1 and len(jobs) > 1:
             with ProcessPoolExecutor(max_workers=min(processes, len(jobs)),
                                      mp_context=multiprocessing.get_context("spawn")) as pool:
                 energies = list(pool.map(_reference_job, jobs))
         else:
             energies = [_reference_job(job) for job in jobs]
-        points = tuple(ReferencePoint(r.kind, r.angle_deg, e) for r, e in zip(records, energies))
+        by_key = {key(r): e for r, e in zip(distinct, energies)}
+        points = tuple(ReferencePoint(r.kind, r.angle_deg, by_key[key(r)]) for r in records)
         bonds.append(replace(bond, refined=replace(bond.refined, reference=points, reference_label=REFERENCE_LABEL)))
     return replace(result, bonds=tuple(bonds))

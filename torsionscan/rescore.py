@@ -8,6 +8,7 @@ absolute in Hartree, coordinates Bohr. The DFT levels and the PySCF calculation 
 engines/dft.py (re-exported here: Level, PRESETS, parse_level, check_level).
 """
 
+import math
 import time
 from dataclasses import replace
 
@@ -16,6 +17,7 @@ import numpy as np
 from .analysis import analyse_profile
 from .engines.dft import PRESETS, TEST_MOLECULE, DftEngine, Level, check_level, parse_level
 from .errors import InputError
+from .freeenergy import rotor_and_rates
 from .records import MethodDisagreement, RescoredProfile
 from .thermo import is_s_cis
 from .torsionfit import profile_errors
@@ -51,7 +53,7 @@ def _region(minimum):
 def disagreement(bond, analysis, energies_hartree, method):
     """MethodDisagreement of a re-scored profile (analysis; energies_hartree per relaxed point)
     against the bond's own profile computed with `method`, at the same geometries."""
-    pairs = bond.points_with_frames()
+    pairs = [(p, n) for p, n in bond.points_with_frames() if math.isfinite(energies_hartree[n])]
     semi = [bond.profile.relative_kcal_mol(p.energy_hartree) for p, _ in pairs]
     rescored = [analysis.relative_kcal_mol(energies_hartree[n]) for _, n in pairs]
     rms, largest = profile_errors(semi, rescored)
@@ -75,6 +77,8 @@ def rescore_bond(result, bond, level, threads=None):
     pairs = bond.points_with_frames()
     analysis = analyse_profile([p.angle_deg for p, _ in pairs], [energies[n] for _, n in pairs], bond.symmetric,
                                result.settings.temperatures_k, result.settings.scis_window_deg)
+    analysis = rotor_and_rates(analysis, result.mol, bond.dihedral_atoms, result.settings.temperatures_k,
+                               result.settings.scis_window_deg, bond.profile.lowest_minimum().coords_bohr)
     return RescoredProfile(level.label, level.reference, energies, analysis,
                            disagreement(bond, analysis, energies, result.method), time.perf_counter() - started)
 

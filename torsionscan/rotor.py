@@ -25,7 +25,7 @@ from scipy.linalg import eig_banded
 from scipy.special import logsumexp
 
 from .errors import InputError
-from .geometry import orthonormal_rows
+from .geometry import internal_rotation, orthonormal_rows
 from .profile import stationary_points
 from .thermo import SCIS_LIMIT_DEG, is_s_cis
 from .units import (
@@ -107,9 +107,7 @@ def reduced_moment_of_inertia(masses_amu, coords_bohr, j, k, moving_atoms, defin
         raise InputError(f"atoms {j} and {k} coincide: check the geometry")
 
     if definition == "projected":
-        unit = bond / np.linalg.norm(bond)
-        displacement = np.zeros_like(coords)
-        displacement[moving] = np.cross(unit, coords[moving] - coords[k])
+        displacement = internal_rotation(coords, j, k, moving)
         root_m = np.sqrt(masses)[:, np.newaxis]
         centred = coords - masses @ coords / masses.sum()
         rigid = [root_m * np.tile(axis, (count, 1)) for axis in np.eye(3)]

@@ -1,5 +1,6 @@
-"""Work on a finished result folder: read its summary.json, compute more (DFT re-scoring,
-torsion-term fits), attach the records to the result and rewrite the folder.
+"""Work on a finished result folder: read its summary.json, compute more (DFT re-scoring, DFT
+refinement with the coupled-cluster reference, torsion-term fits), attach the records to the
+result and rewrite the folder.
 
 The folder's summary.json holds the whole result (coordinates included), so nothing else of
 the folder is read; every file is written again by output.write_results.

@@ -1,9 +1,11 @@
-"""GFN-xTB engines behind one small interface.
+"""Engines behind one small interface: the protocol, the capability names, the registry of
+GFN-xTB implementations and the solvent vocabulary.
 
 An engine is bound to one molecule (atomic numbers, charge, unpaired electrons) and answers
 ``energy_and_gradient(coords_bohr) -> (energy_hartree, gradient_hartree_per_bohr)``, reusing the
-previous SCF solution as the start of the next one. Two independent implementations of the
-published methods are supported: xtb-python (``xtb``) and ``tblite``.
+previous SCF solution as the start of the next one. Two independent implementations of GFN-xTB
+are registered, xtb-python (``xtb``) and ``tblite``; ``dft.py`` (PySCF) and ``model.py`` (an
+analytic model potential) are engines of the same protocol made directly.
 """
 
 from typing import Protocol

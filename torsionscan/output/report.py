@@ -238,7 +238,7 @@ def table_columns(temperatures_k, extra_columns):
                     f"half_life_{key}_s"]
     columns += ["fit_rmse_kcal_mol", "fit_target_met", "hysteresis", "rescore_level", "rescored_global_min_deg",
                 "rescored_barrier_to_other_region_kcal_mol"]
-    columns += [f"rescored_s_cis_{_temperature_key(t)}" for t in temperatures_k]
+    columns += [f"rescored_s_cis_{_temperature_key(t)}" for t in temperatures_k] + ["rescored_population_model"]
     columns += ["method_disagreement_max_kcal_mol", "method_disagreement_warning", "refine_level", "refine_points",
                 "refined_global_min_deg", "refined_scis_min_deg", "refined_scis_min_rel_kcal_mol",
                 "refined_barrier_to_other_region_kcal_mol"]
@@ -246,12 +246,14 @@ def table_columns(temperatures_k, extra_columns):
         key = _temperature_key(t)
         columns += [f"refined_s_cis_{key}", f"refined_s_cis_harmonic_{key}",
                     f"refined_dG_to_planar_scis_{key}_kcal_mol"]
+    columns += ["refined_population_model"]
     columns += ["refined_disagreement_max_kcal_mol", "refined_disagreement_warning", "compound_wall_time_s"]
     return columns + [c for c in extra_columns if c not in columns]
 
 
 # columns that split the circle into s-cis and s-trans: empty for a symmetric rotor
 _REGION_COLUMN_PREFIXES = ("scis_min_", "strans_min_", "barrier_to_other_region", "population_model", "s_cis_",
+                           "rescored_population_model", "refined_population_model",
                            "scis_window_", "dG_", "half_life_", "rescored_s_cis_", "rescored_barrier_to_other_region",
                            "refined_scis_min_", "refined_barrier_to_other_region", "refined_s_cis_", "refined_dG_")
 
@@ -323,7 +325,8 @@ def bond_row(bond):
                     "rescored_barrier_to_other_region_kcal_mol": barrier,
                     "method_disagreement_max_kcal_mol": _rounded(rescored.disagreement.max_kcal_mol, _BARRIER_DIGITS),
                     "method_disagreement_warning": rescored.disagreement.warning or ""})
-        for p in leading_answer(rescored.analysis)[0]:
+        entries, row["rescored_population_model"] = leading_answer(rescored.analysis)
+        for p in entries:
             row[f"rescored_s_cis_{_temperature_key(p.temperature_k)}"] = p.s_cis
     if bond.refined is not None:
         row.update(_refined_row(bond.refined))
@@ -349,7 +352,8 @@ def _refined_row(refined):
            "refined_scis_min_rel_kcal_mol": None if scis is None else _rounded(
                analysis.relative_kcal_mol(scis.energy_hartree), _ENERGY_DIGITS),
            "refined_barrier_to_other_region_kcal_mol": barrier}
-    for p in leading_answer(analysis)[0]:
+    entries, row["refined_population_model"] = leading_answer(analysis)
+    for p in entries:
         row[f"refined_s_cis_{_temperature_key(p.temperature_k)}"] = p.s_cis
     for p in analysis.rrho_populations:
         row[f"refined_s_cis_harmonic_{_temperature_key(p.temperature_k)}"] = p.s_cis
