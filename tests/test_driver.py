@@ -146,3 +146,13 @@ def test_the_scan_coordinate_handles_grid_points_as_tuples():
     assert len(coordinate.constraints((1, 2))) == 2
     with pytest.raises(NotImplementedError):
         coordinate.sweep_plan((0, 0))
+
+
+def test_an_engine_is_refused_for_what_its_capabilities_do_not_cover():
+    molecule = load_molecule("C=CC=C")
+    engine = ModelEngine(molecule.mol, [])
+    with pytest.raises(torsionscan.InputError, match="cannot handle an implicit solvent"):
+        torsionscan.scan("C=CC=C", engine=engine, settings=torsionscan.ScanSettings(solvent="water"))
+    engine.capabilities = frozenset()  # an engine that states no charge support
+    with pytest.raises(torsionscan.InputError, match="cannot handle a charge of 1"):
+        torsionscan.scan("C=CC=C[CH2+]", engine=engine, settings=QUICK)
