@@ -101,3 +101,18 @@ def test_s_cis_share_does_not_depend_on_the_atom_order(orders):
     # lowest-atom-number tie-break gave 58.3 % and 41.8 % for the two thiophene orders (default
     # settings): the dihedral ran to C4 in one order and to C2 in the other.
     assert shares[0] == pytest.approx(shares[1], abs=0.01)
+
+
+@pytest.mark.xtb
+@pytest.mark.parametrize("smiles, symmetric", [("C=Cc1ccccc1", True), ("C=Cc1ccsc1", False)])
+def test_symmetric_rotors_are_confirmed_on_the_profile(smiles, symmetric):
+    # styrene's phenyl turns into itself at 180 deg, so E(phi) = E(180 - phi) must hold on the real
+    # profile; 3-vinylthiophene's two ring sides differ (C2 next to S, C4 not)
+    bond = torsionscan.scan(smiles, settings=torsionscan.ScanSettings(step_deg=30, conformers=2,
+                                                                      frequencies=False)).bonds[0]
+    assert bond.symmetric_rotor is symmetric
+
+
+@pytest.mark.xtb
+def test_biphenyl_is_a_symmetric_rotor(biphenyl_scan):
+    assert biphenyl_scan.bonds[0].symmetric_rotor
