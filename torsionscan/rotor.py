@@ -27,7 +27,7 @@ from scipy.special import logsumexp
 from .errors import InputError
 from .geometry import internal_rotation, orthonormal_rows
 from .profile import stationary_points
-from .thermo import SCIS_LIMIT_DEG, is_s_cis
+from .thermo import SCIS_LIMIT_DEG, is_s_cis, region_delta_g
 from .units import (
     AMU_KG, AVOGADRO_PER_MOL, BOHR_M, BOLTZMANN_J_K, CAL_J, PLANCK_J_S, SPEED_OF_LIGHT_M_S, rt_kcal_mol,
     wrap_deg,
@@ -359,14 +359,6 @@ class RotorPopulations:
     basis_size: int
 
 
-def _delta_g(temperature_k, scis, trans):
-    if scis == 0.0:
-        return math.inf
-    if trans == 0.0:
-        return -math.inf
-    return rt_kcal_mol(temperature_k) * (math.log(trans) - math.log(scis))
-
-
 def rotor_populations(series, inertia_amu_bohr2, temperature_k, scis_window_deg=30.0):
     """Boltzmann-weighted s-cis/s-trans split of the torsional levels at temperature_k (K).
 
@@ -390,7 +382,7 @@ def rotor_populations(series, inertia_amu_bohr2, temperature_k, scis_window_deg=
         s_trans=trans_weight,
         scis_window=window,
         scis_window_deg=float(scis_window_deg),
-        delta_g_kcal_mol=_delta_g(t, scis_weight, trans_weight),
+        delta_g_kcal_mol=region_delta_g(t, scis_weight, trans_weight),
         partition_function=q,
         zpe_kcal_mol=zpe,
         free_energy_kcal_mol=zpe - rt * math.log(q),

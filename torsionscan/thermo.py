@@ -44,6 +44,16 @@ class RegionPopulations:
     delta_g_kcal_mol: float
 
 
+def region_delta_g(temperature_k, s_cis, s_trans):
+    """-RT ln(s_cis / s_trans) in kcal/mol from two region weights (any common scale): +inf when
+    s_cis is zero, -inf when s_trans is."""
+    if s_cis == 0.0:
+        return math.inf
+    if s_trans == 0.0:
+        return -math.inf
+    return rt_kcal_mol(temperature_k) * (math.log(s_trans) - math.log(s_cis))
+
+
 def _composite_gauss_legendre(lower, upper, panels):
     """Nodes and weights of a composite Gauss-Legendre rule on [lower, upper] (degrees)."""
     x, w = np.polynomial.legendre.leggauss(_NODES_PER_PANEL)
@@ -87,12 +97,7 @@ def region_populations(energy_kcal_mol, temperature_k, scis_window_deg=30.0, sam
     trans = float(weights @ trans_boltzmann)
     window = float(weights[in_window] @ cis_boltzmann[in_window])
     total = scis + trans
-    if scis == 0.0:
-        delta_g = math.inf
-    elif trans == 0.0:
-        delta_g = -math.inf
-    else:
-        delta_g = rt_kcal_mol(temperature_k) * (math.log(trans) - math.log(scis))
+    delta_g = region_delta_g(temperature_k, scis, trans)
     return RegionPopulations(
         temperature_k=float(temperature_k),
         s_cis=scis / total,
