@@ -143,7 +143,7 @@ def test_the_scan_coordinate_handles_grid_points_as_tuples():
     assert coordinate.angles_deg((2, -1)) == (60.0, -30.0)
     assert coordinate.canonical((13, -1)) == (1, 11)
     assert coordinate.mirror_index((2, 3)) == (10, 9)
-    assert len(coordinate.constraints((1, 2))) == 2
+    assert len(coordinate.constraints(coordinate.angles_deg((1, 2)))) == 2
     with pytest.raises(NotImplementedError):
         coordinate.sweep_plan((0, 0))
 

@@ -86,10 +86,10 @@ class ScanCoordinate:
         """The grid point nearest to a structure."""
         return tuple(int(round(a / self.step_deg)) for a in self.measure_deg(coords))
 
-    def constraints(self, index):
-        """The constraints holding every dihedral at the grid point."""
-        return [DihedralConstraint(atoms, np.radians(angle))
-                for atoms, angle in zip(self.dihedrals, self.angles_deg(index))]
+    def constraints(self, angles_deg):
+        """The constraints holding every dihedral at the given angles (degrees; a grid point's
+        angles_deg or any off-grid angles)."""
+        return [DihedralConstraint(atoms, np.radians(angle)) for atoms, angle in zip(self.dihedrals, angles_deg)]
 
     def turn(self, coords, hessian, angles_deg):
         """Rigidly turn each moving side so the dihedrals reach angles_deg; turn the Hessian with it."""

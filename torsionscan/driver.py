@@ -17,7 +17,7 @@ import numpy as np
 
 from .version import __version__
 from .analysis import analyse_profile, display_angle, in_arc, is_symmetric_rotor_profile
-from .coordinate import DihedralConstraint, ScanCoordinate, mirror, mirror_hessian
+from .coordinate import ScanCoordinate, mirror, mirror_hessian
 from .engines import CHARGE, CONJUGATION, SOLVENT, SPIN, make_engine
 from .errors import CalculationError, InputError
 from .freeenergy import add_free_energies, rotor_and_rates
@@ -87,8 +87,7 @@ class BondScanner:
     def relax_at(self, coords, hessian, angles_deg, convergence):
         """Turn a structure to the angles and relax it there; the optimisation result."""
         turned, turned_hessian = self.coordinate.turn(coords, hessian, angles_deg)
-        constraints = [DihedralConstraint(atoms, np.radians(a)) for atoms, a in zip(self.coordinate.dihedrals, angles_deg)]
-        return self.relaxer.relax(turned, convergence, turned_hessian, constraints)
+        return self.relaxer.relax(turned, convergence, turned_hessian, self.coordinate.constraints(angles_deg))
 
     def _visit(self, index, coords, hessian):
         angle = float(wrap_deg(self.coordinate.angles_deg(index)[0]))
