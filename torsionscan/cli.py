@@ -1,5 +1,6 @@
 """Command line: a thin shell over the library. Errors become one-line messages and exit codes
-(2 = input problem, 3 = calculation failure); --debug shows the traceback instead."""
+(2 = input problem, 3 = calculation failure, 4 = batch finished with failed compounds,
+5 = storage problem); --debug shows the traceback instead."""
 
 import argparse
 import logging

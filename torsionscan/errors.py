@@ -1,6 +1,6 @@
 """The package's exceptions: problems with what the user gave vs calculations that failed.
 
-The command line maps them to one-line messages and exit codes (2 input, 3 calculation).
+The command line maps them to one-line messages and exit codes (2 input, 3 calculation, 5 storage).
 """
 
 
@@ -26,3 +26,9 @@ class TimeLimitExceeded(TorsionScanError):
     """A compound's calculations ran past the time allowed for it (checked between gradients)."""
 
     exit_code = 3
+
+
+class StorageError(TorsionScanError):
+    """Results cannot be written or read back: disk full, read-only location, corrupt database."""
+
+    exit_code = 5
