@@ -94,7 +94,12 @@ def read_mm_energies(path, frame_count):
             columns = {c.strip().lower(): c for c in reader.fieldnames or []}
             rows = [row for row in reader if any((v or "").strip() for v in row.values() if isinstance(v, str))]
     except OSError as error:
-        raise InputError(f"cannot read MM energies from {path}: {error.strerror}") from None
+        raise InputError(f"cannot read MM energies from {path}: {error.strerror}; check the path") from None
+    except UnicodeDecodeError:
+        raise InputError(f"{path} is not a UTF-8 text table; give the MM energies as a CSV text file") from None
+    except csv.Error as error:
+        raise InputError(f"{path} could not be read as a CSV table ({error}); give the MM energies as a CSV "
+                         "text file") from None
     if "energy_kcal_mol" in columns:
         key, factor = columns["energy_kcal_mol"], 1.0
     elif "energy_kj_mol" in columns:

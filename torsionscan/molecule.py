@@ -24,6 +24,7 @@ partner (a bond chosen by hand, pyrrole N) takes the best-ranked of its other ne
 same criteria. `--bond i-j-k-l` names all four atoms and overrides the rule.
 """
 
+import os
 import re
 from dataclasses import dataclass
 from fractions import Fraction
@@ -40,6 +41,15 @@ RDLogger.DisableLog("rdApp.*")
 _PI_BOND_TYPES = (Chem.BondType.DOUBLE, Chem.BondType.AROMATIC)
 _FILE_SUFFIXES = {".sdf": "sdf", ".sd": "sdf", ".mol": "sdf", ".xyz": "xyz"}
 _NUMBER_PROP = "_torsionscan_number"
+COINCIDENT_ANGSTROM = 0.01  # two input atoms closer than this are one place given twice
+MIN_DISTANCE_ANGSTROM = 0.5  # shorter than any bond (H2: 0.74 A)
+LARGE_ATOMS = 60  # above this a scan gets a warning with its expected time
+MAX_ATOMS = 300  # above this a scan is refused unless forced (--allow-large)
+# measured warm-started GFN2-xTB gradients on one core (xtb-python, alkyl dienes): 0.14 s at 64 atoms,
+# 0.43 s at 124, 0.85 s at 184, about 2.5-3.5e-5 N^2 s
+GRADIENT_S_PER_ATOM2 = 3.0e-5
+SCAN_GRADIENTS = 400  # start structures and a 15-degree scan of one bond, typical
+FREQUENCY_GRADIENTS_PER_ATOM = 24  # 6N per stationary point, about four of them
 
 
 @dataclass(frozen=True)
@@ -105,6 +115,8 @@ def _looks_like_path(text):
 
 
 def _check_single_molecule(mol, what):
+    if mol.GetNumAtoms() == 0:
+        raise InputError(f"{what} holds no atoms; give a structure with atoms")
     fragments = Chem.GetMolFrags(mol)
     if len(fragments) > 1:
         raise InputError(
@@ -112,16 +124,58 @@ def _check_single_molecule(mol, what):
         )
 
 
+def _check_coordinates(coords, symbols, what):
+    """InputError when two atoms of input coordinates (Angstrom) sit closer than any bond."""
+    coords = np.asarray(coords, dtype=float)
+    if len(coords) < 2:
+        return
+    distances = np.linalg.norm(coords[:, None, :] - coords[None, :, :], axis=-1)
+    distances[np.diag_indices(len(coords))] = np.inf
+    a, b = sorted(np.unravel_index(int(np.argmin(distances)), distances.shape))
+    closest = float(distances[a, b])
+    names = f"atoms {a + 1} and {b + 1} ({symbols[a]}, {symbols[b]})"
+    if closest < COINCIDENT_ANGSTROM:
+        raise InputError(f"{what}: {names} coincide ({closest:.3f} \u00c5 apart); fix the coordinates")
+    if closest < MIN_DISTANCE_ANGSTROM:
+        raise InputError(f"{what}: {names} are only {closest:.2f} \u00c5 apart, closer than any bond; "
+                         "fix the coordinates")
+
+
+def _read_bytes(path, kind):
+    """The bytes of a molecule file; one-line InputError for a folder, a missing, unreadable or empty file."""
+    if path.is_dir():
+        raise InputError(f"{path} is a directory, not a molecule file; give a .sdf, .mol or .xyz file")
+    if not path.exists():
+        raise InputError(f"file not found: {path}; check the path")
+    if not path.is_file():
+        raise InputError(f"{path} is not a regular file; give a .sdf, .mol or .xyz file")
+    try:
+        data = path.read_bytes()
+    except OSError as error:
+        raise InputError(f"{path} cannot be read ({error.strerror}); check its permissions") from None
+    if not data.strip():
+        raise InputError(f"{path} is empty; give a file with a structure")
+    if b"\0" in data:
+        raise InputError(f"{path} is a binary file, not {kind} text; give a text .sdf, .mol or .xyz file")
+    try:
+        return data.decode("utf-8-sig")
+    except UnicodeDecodeError:
+        return data.decode("latin-1")  # MOL/XYZ content is ASCII; only titles and data fields may be other text
+
+
 def _read_sdf(path, record):
-    supplier = Chem.SDMolSupplier(str(path), removeHs=False, sanitize=True)
     if record < 1:
         raise InputError("--record counts from 1")
+    supplier = Chem.SDMolSupplier()
+    supplier.SetData(_read_bytes(path, "MOL/SDF"), removeHs=False, sanitize=True)
     count = 0
     for index, mol in enumerate(supplier, start=1):
         count = index
         if index == record:
             if mol is None:
                 raise InputError(f"{path}: record {record} could not be read (bad structure block); fix the file")
+            if mol.GetNumAtoms() == 0:
+                raise InputError(f"{path}: record {record} holds no atoms; give a structure with atoms")
             return mol, (mol.GetProp("_Name").strip() if mol.HasProp("_Name") else "")
     if count == 0:
         raise InputError(f"{path}: no readable molecule records; is it an MDL MOL/SDF file?")
@@ -129,9 +183,10 @@ def _read_sdf(path, record):
 
 
 def _read_xyz(path, charge):
-    mol = Chem.MolFromXYZFile(str(path))
+    mol = Chem.MolFromXYZBlock(_read_bytes(path, "XYZ"))
     if mol is None or mol.GetNumAtoms() == 0:
         raise InputError(f"{path}: not a readable XYZ file (atom count line, comment line, 'El x y z' lines)")
+    _check_coordinates(mol.GetConformer().GetPositions(), [a.GetSymbol() for a in mol.GetAtoms()], str(path))
     try:
         rdDetermineBonds.DetermineBonds(mol, charge=charge)
     except Exception as error:  # RDKit raises plain ValueError/RuntimeError here
@@ -148,31 +203,100 @@ def _input_coords(mol):
     return None
 
 
+def _read_file(path, charge, record):
+    """(RDKit molecule, 3D coordinates or None, default name, description) of a MOL/SDF/XYZ file."""
+    kind = _FILE_SUFFIXES.get(path.suffix.lower())
+    if kind is None and not path.is_dir():
+        if not path.exists():
+            raise InputError(f"file not found: {path}; check the path")
+        raise InputError(f"{path}: unknown file type {path.suffix!r}; use .sdf, .mol or .xyz (or a SMILES string)")
+    if kind == "xyz":
+        mol, title = _read_xyz(path, charge or 0), ""
+    else:
+        mol, title = _read_sdf(path, record)
+    return mol, _input_coords(mol), title or path.stem, str(path)
+
+
 def _read_source(source, charge, record):
-    """(RDKit molecule, 3D coordinates or None, default name, description for messages)."""
+    """(RDKit molecule, 3D coordinates or None, default name, description for messages).
+
+    An RDKit molecule is taken as it is and a path object (os.PathLike) is always a file. A string is
+    SMILES when it parses as SMILES; otherwise it is a file when such a file (or folder) exists or it
+    ends like a molecule file, so a SMILES never reads a file of the same name.
+    """
     if isinstance(source, Chem.Mol):
         mol = Chem.Mol(source)
         title = mol.GetProp("_Name").strip() if mol.HasProp("_Name") else ""
-        return mol, _input_coords(mol), title or Chem.MolToSmiles(Chem.RemoveHs(mol)), "the structure"
+        text = Chem.MolToSmiles(Chem.RemoveHs(mol)) if mol.GetNumAtoms() else ""
+        return mol, _input_coords(mol), title or text, "the structure"
+    if isinstance(source, os.PathLike):
+        return _read_file(Path(source), charge, record)
     source = str(source).strip()
     if not source:
         raise InputError("no molecule given; pass a SMILES string or a MOL/SDF/XYZ file")
-    path = Path(source)
-    if path.is_file():
-        kind = _FILE_SUFFIXES.get(path.suffix.lower())
-        if kind is None:
-            raise InputError(f"{path}: unknown file type {path.suffix!r}; use .sdf, .mol or .xyz (or a SMILES string)")
-        if kind == "sdf":
-            mol, title = _read_sdf(path, record)
-        else:
-            mol, title = _read_xyz(path, charge or 0), ""
-        return mol, _input_coords(mol), title or path.stem, str(path)
     mol = Chem.MolFromSmiles(source)
-    if mol is None and _looks_like_path(source):
-        raise InputError(f"file not found: {source}")
-    if mol is None:
-        raise InputError(f"could not read {source!r} as SMILES (nor is it an existing file); check the string")
-    return mol, None, source, "the SMILES"
+    if mol is not None:
+        return mol, None, source, "the SMILES"
+    if os.path.lexists(source) or _looks_like_path(source):
+        return _read_file(Path(source), charge, record)
+    raise InputError(f"could not read {source!r} as SMILES (nor is it an existing file); check the string")
+
+
+def molecule_source(text=None, *, smiles=None, file=None):
+    """What a command line names as its molecule: a SMILES string (str) or a file (Path).
+
+    text: the positional argument; smiles / file: the explicit --smiles TEXT and --file PATH.
+    Exactly one may be given. A positional argument that parses as SMILES and also names an
+    existing file or folder is refused as ambiguous; otherwise it is SMILES if it parses, else a file.
+    """
+    given = [value for value in (text, smiles, file) if value is not None]
+    if len(given) > 1:
+        raise InputError("give only one of a molecule argument, --smiles TEXT and --file PATH")
+    if not given:
+        raise InputError("no molecule given; pass a SMILES string or a MOL/SDF/XYZ file (or --smiles / --file)")
+    if file is not None:
+        return Path(file)
+    if smiles is not None:
+        if smiles.strip() and Chem.MolFromSmiles(smiles.strip()) is None:
+            raise InputError(f"could not read {smiles!r} as SMILES; check the string")
+        return smiles
+    if text.strip() and Chem.MolFromSmiles(text.strip()) is not None and os.path.lexists(text):
+        kind = "folder" if os.path.isdir(text) else "file"
+        raise InputError(f"{text!r} is both a SMILES string and the name of an existing {kind}; say which one "
+                         f"you mean with --smiles {text!r} or --file {text!r}")
+    if text.strip() and Chem.MolFromSmiles(text.strip()) is None and (os.path.lexists(text) or _looks_like_path(text)):
+        return Path(text)
+    return text
+
+
+def scan_cost_estimate_s(atom_count, frequencies=True):
+    """A rough wall time (s) of a default scan of one bond on one core, from the measured cost of a
+    GFN2-xTB gradient (about GRADIENT_S_PER_ATOM2 * N^2 s) and typical gradient counts."""
+    gradients = SCAN_GRADIENTS + (FREQUENCY_GRADIENTS_PER_ATOM * atom_count if frequencies else 0)
+    return gradients * GRADIENT_S_PER_ATOM2 * atom_count ** 2
+
+
+def check_size(molecule, allow_large=False, frequencies=True):
+    """The warning text for a molecule above LARGE_ATOMS atoms (None below); InputError above
+    MAX_ATOMS unless allow_large."""
+    count = molecule.mol.GetNumAtoms()
+    if count > MAX_ATOMS and not allow_large:
+        raise InputError(
+            f"{count} atoms (hydrogens included) is above the {MAX_ATOMS}-atom limit: a scan would take about "
+            f"{_duration(scan_cost_estimate_s(count, frequencies))} per bond; pass --allow-large to run it anyway"
+        )
+    if count > LARGE_ATOMS:
+        return (f"{count} atoms: expect about {_duration(scan_cost_estimate_s(count, frequencies))} per scanned bond "
+                "on one core (GFN2-xTB cost grows with the square of the atom count)")
+    return None
+
+
+def _duration(seconds):
+    if seconds < 120:
+        return f"{seconds:.0f} s"
+    if seconds < 7200:
+        return f"{seconds / 60:.0f} min"
+    return f"{seconds / 3600:.0f} h"
 
 
 def load_molecule(source, *, name=None, charge=None, unpaired_electrons=0, record=1):
@@ -183,6 +307,8 @@ def load_molecule(source, *, name=None, charge=None, unpaired_electrons=0, recor
     """
     mol, coords, default_name, what = _read_source(source, charge, record)
     _check_single_molecule(mol, what)
+    if coords is not None:
+        _check_coordinates(coords, [atom.GetSymbol() for atom in mol.GetAtoms()], what)
     had_hydrogens = any(atom.GetAtomicNum() == 1 for atom in mol.GetAtoms())
     mol = Chem.AddHs(mol, addCoords=coords is not None)
     if coords is not None and not had_hydrogens and mol.GetNumAtoms() > len(coords):
@@ -385,6 +511,10 @@ def select_bond(molecule, spec):
         raise InputError(
             f"--bond {spec!r}: give two or four atom numbers between 1 and {n_atoms} (1-based, hydrogens last)"
         )
+    repeated = sorted({x for x in numbers if numbers.count(x) > 1})
+    if repeated:
+        raise InputError(f"--bond {spec}: atom {repeated[0]} appears more than once; a dihedral needs "
+                         "distinct atoms (two for j-k, four for i-j-k-l)")
     atoms = [x - 1 for x in numbers]
     j, k = atoms[-3:-1] if len(atoms) == 4 else atoms
     mol = molecule.mol
@@ -395,6 +525,13 @@ def select_bond(molecule, spec):
         raise InputError(f"--bond {spec}: bond {j + 1}-{k + 1} is in a ring and cannot rotate freely; choose an acyclic bond")
     if bond.GetBondType() != Chem.BondType.SINGLE:
         raise InputError(f"--bond {spec}: bond {j + 1}-{k + 1} is not a single bond; choose a single bond")
+    for centre in (j, k):
+        atom = mol.GetAtomWithIdx(centre)
+        if atom.GetDegree() == 2 and atom.GetHybridization() == Chem.HybridizationType.SP:
+            raise InputError(
+                f"--bond {spec}: atom {centre + 1} ({atom.GetSymbol()}) is linear (sp: a triple bond or two double "
+                f"bonds), so no dihedral about bond {j + 1}-{k + 1} is defined and its profile would be flat; "
+                "choose a bond between two non-linear atoms")
     if len(atoms) == 4:
         i, l = atoms[0], atoms[3]
         if mol.GetBondBetweenAtoms(i, j) is None or mol.GetBondBetweenAtoms(k, l) is None:

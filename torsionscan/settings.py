@@ -1,11 +1,23 @@
 """How a scan is run: the ScanSettings record and its checks."""
 
 import math
+import numbers
 from dataclasses import asdict, dataclass, field
 
 from .engines import solvation_model
 from .errors import InputError
 from .optimize import Convergence
+
+
+MIN_CONFORMERS, MAX_CONFORMERS = 1, 200
+MIN_SEED, MAX_SEED = 0, 2**31 - 1
+# kelvin: below 1 K the Boltzmann weights underflow; above 5000 K no molecule here is intact
+MIN_TEMPERATURE_K, MAX_TEMPERATURE_K = 1.0, 5000.0
+
+
+def _temperature(value):
+    """True for a usable temperature in kelvin."""
+    return isinstance(value, numbers.Real) and math.isfinite(value) and MIN_TEMPERATURE_K <= value <= MAX_TEMPERATURE_K
 
 
 @dataclass(frozen=True)
@@ -40,15 +52,24 @@ class ScanSettings:
             raise InputError(
                 f"--step {self.step_deg:g}: the grid step must be 1 to 90 degrees and divide 180 (e.g. 5, 10, 15, 30)"
             )
-        if self.conformers < 1:
-            raise InputError("--conformers must be at least 1")
-        if not self.temperatures_k or not all(math.isfinite(t) and t > 0 for t in self.temperatures_k):
-            raise InputError("--temperature values must be finite numbers above 0 K")
+        if not MIN_CONFORMERS <= self.conformers <= MAX_CONFORMERS:
+            raise InputError(f"--conformers {self.conformers}: give {MIN_CONFORMERS} to {MAX_CONFORMERS} start "
+                             "structures (each costs a full GFN-xTB optimisation; 5 is the default)")
+        if not MIN_SEED <= self.seed <= MAX_SEED:
+            raise InputError(f"--seed {self.seed}: the embedding seed must be a whole number from {MIN_SEED} to "
+                             f"{MAX_SEED} (RDKit takes a 32-bit seed)")
+        if not self.temperatures_k or not all(_temperature(t) for t in self.temperatures_k):
+            raise InputError(f"--temperature values must be finite numbers from {MIN_TEMPERATURE_K:g} to "
+                             f"{MAX_TEMPERATURE_K:g} K")
         low, high = self.temperature_range_k
-        if not 0.0 < low < high:
-            raise InputError("--temperature-range needs 0 < TMIN < TMAX (kelvin)")
+        if not (_temperature(low) and _temperature(high) and low < high):
+            raise InputError(f"--temperature-range needs TMIN < TMAX, both from {MIN_TEMPERATURE_K:g} to "
+                             f"{MAX_TEMPERATURE_K:g} K")
         if not 0.0 < self.scis_window_deg <= 90.0:
             raise InputError("--scis-window must be between 0 and 90 degrees")
+        if self.solvent is not None and not self.solvent.strip():
+            raise InputError("--solvent is empty; give a solvent name such as water, or leave the option out "
+                             "for the gas phase")
         solvation_model(self.solvent, self.solvation_model)
 
     def as_dict(self):
