@@ -13,7 +13,7 @@ import pytest
 import torsionscan
 from torsionscan.compounds import CompoundEntry
 from torsionscan.engines.model import ModelEngine
-from torsionscan.errors import InputError
+from torsionscan.errors import InputError, StorageError
 from torsionscan.molecule import find_conjugated_bonds, load_molecule
 from torsionscan.profile import FourierSeries
 from torsionscan.records import MethodDisagreement, RescoredProfile
@@ -160,7 +160,9 @@ def test_a_corrupt_or_foreign_database_is_a_one_line_error(tmp_path):
     corrupt = tmp_path / "corrupt"
     corrupt.mkdir()
     (corrupt / DATABASE_NAME).write_bytes(b"this is not a database at all" * 100)
-    with pytest.raises(InputError, match="is not a readable run database") as error:
+    with pytest.raises(StorageError, match=f"run.sqlite in {corrupt} is not a readable run database "
+                                           r"\(file is not a database\); move it away or choose another --out"
+                       ) as error:
         RunStore(corrupt, create=False)
     assert "\n" not in str(error.value)
     foreign = tmp_path / "foreign"

@@ -7,27 +7,35 @@ files, committing every compound as soon as its outcome arrives. Rerunning on th
 skips finished compounds; failed ones are retried on request.
 """
 
+import collections
 import json
 import logging
 import multiprocessing
+import multiprocessing.connection
 import os
+import pickle
 import resource
+import signal
 import socket
 import sqlite3
+import threading
 import time
-from concurrent.futures import ProcessPoolExecutor, as_completed
-from concurrent.futures.process import BrokenProcessPool
 from dataclasses import dataclass, replace
 from pathlib import Path
 
 from .threads import THREAD_VARIABLES, usable_cores
 from .compounds import read_compound_list
 from .engines import resolve_backend
-from .errors import CalculationError, InputError, TimeLimitExceeded, TorsionScanError
+from .errors import CalculationError, InputError, StorageError, TimeLimitExceeded, TorsionScanError
 from .records import ScanResult
 from .store import RunStore, compound_folder
 
 log = logging.getLogger(__name__)
+
+# test hook: a worker given the compound of this name ends its process at once (os._exit), as a crash would
+EXIT_IN_WORKER_VARIABLE = "TORSIONSCAN_TEST_EXIT_IN_WORKER"
+EXIT_IN_WORKER_STATUS = 70
+CLUSTER_WORKER_WAIT_S = 60.0
 
 
 @dataclass(frozen=True)
@@ -42,6 +50,7 @@ class BatchOptions:
     rescore: str | None = None  # DFT level to re-score every scan with (rescore.parse_level)
     refine: str | None = None  # DFT level to re-optimise every scan at (workflows.refine_with_dft)
     refine_points: str = "all"  # "all" grid points or only the "stationary" ones
+    cluster_worker_wait_s: float = CLUSTER_WORKER_WAIT_S  # give up when a Dask scheduler has no worker this long
 
     def check(self):
         if self.workers is not None and self.workers < 1:
@@ -71,6 +80,8 @@ def scan_compound(job):
     Never raises for a problem with the compound: the outcome's status is then "failed" with the reason.
     A failed re-scoring keeps the finished scan; its reason is the outcome's rescore_failure.
     """
+    if os.environ.get(EXIT_IN_WORKER_VARIABLE) == job["name"]:
+        os._exit(EXIT_IN_WORKER_STATUS)
     from rdkit import Chem
 
     from .driver import scan
@@ -140,34 +151,243 @@ def make_job(record, settings, options):
             "refine": options.refine, "refine_points": options.refine_points, "threads": options.threads_per_worker}
 
 
-def _local_outcomes(jobs, workers, threads_per_worker):
-    """Outcomes as they finish, from a pool of spawned local processes."""
-    saved = {variable: os.environ.get(variable) for variable in THREAD_VARIABLES}
-    os.environ.update({variable: str(threads_per_worker) for variable in THREAD_VARIABLES})  # for the workers
-    pool = ProcessPoolExecutor(max_workers=workers, mp_context=multiprocessing.get_context("spawn"))
+class _Interrupts:
+    """Ctrl-C during a batch. The first asks the batch to stop: no new work is handed out, outcomes
+    already returned are stored, the workers are ended. A second one stops at once (KeyboardInterrupt;
+    while the workers are being ended it only skips their grace time).
+
+    Installed only in the main thread, the one Python delivers signals to; elsewhere a no-op."""
+
+    def __init__(self):
+        self.requested = False
+        self.forced = False
+        self.stopping = False
+        self._previous = None
+        self._installed = False
+
+    def __enter__(self):
+        if threading.current_thread() is threading.main_thread():
+            self._previous = signal.getsignal(signal.SIGINT)
+            signal.signal(signal.SIGINT, self._handle)
+            self._installed = True
+        return self
+
+    def __exit__(self, *exc):
+        if self._installed:
+            signal.signal(signal.SIGINT, self._previous if self._previous is not None else signal.default_int_handler)
+
+    def _handle(self, signum, frame):
+        if self.requested:
+            self.forced = True
+            if not self.stopping:
+                raise KeyboardInterrupt
+        self.requested = True
+
+
+class BatchInterrupted(KeyboardInterrupt):
+    """The batch stopped at Ctrl-C; the message says what is stored."""
+
+
+POLL_S = 0.2  # the pool's longest wait before it looks at an interrupt again
+STOP_GRACE_S = 2.0  # a worker asked to end (SIGTERM) is killed (SIGKILL) after this long
+START_FAILURES = 3  # workers in a row dying before they are ready: the environment is broken
+
+
+def _death(exitcode):
+    """'signal 9' or 'exit status 70' for a worker process that ended by itself."""
+    if exitcode is None:
+        return "no exit status"
+    return f"signal {-exitcode}" if exitcode < 0 else f"exit status {exitcode}"
+
+
+def _worker_loop(connection):
+    """Body of one local worker process: say it is ready, then compute each job received and send its
+    outcome back; stop at None or when the parent is gone. Ctrl-C is the parent's business only."""
+    signal.signal(signal.SIGINT, signal.SIG_IGN)
+    signal.pthread_sigmask(signal.SIG_UNBLOCK, {signal.SIGINT})  # blocked by the parent while starting us
     try:
+        connection.send(("ready", None))
+        while True:
+            job = connection.recv()
+            if job is None:
+                return
+            connection.send(("outcome", scan_compound(job)))
+    except (EOFError, OSError):  # the parent ended: nobody wants the outcome
+        return
+
+
+class _Worker:
+    """One spawned worker process, the pipe to it and the job it holds (at most one)."""
+
+    def __init__(self, context, threads):
+        self.connection, child_end = context.Pipe()
+        self.process = context.Process(target=_worker_loop, args=(child_end,), name="torsionscan-worker")
+        saved = {variable: os.environ.get(variable) for variable in THREAD_VARIABLES}
+        os.environ.update({variable: str(threads) for variable in THREAD_VARIABLES})  # inherited by the child
+        # the child starts with Ctrl-C ignored (an ignored signal stays ignored across exec and Python then
+        # installs no KeyboardInterrupt handler), so a terminal's Ctrl-C reaches only this process
+        mask = signal.pthread_sigmask(signal.SIG_BLOCK, {signal.SIGINT})
+        previous = None
+        if threading.current_thread() is threading.main_thread():
+            previous = signal.signal(signal.SIGINT, signal.SIG_IGN)
         try:
-            futures = [pool.submit(scan_compound, job) for job in jobs]  # workers start during these calls
+            self.process.start()
         finally:
+            if previous is not None:
+                signal.signal(signal.SIGINT, previous)
+            signal.pthread_sigmask(signal.SIG_SETMASK, mask)  # a Ctrl-C meanwhile is delivered now
             for variable, value in saved.items():
                 if value is None:
                     os.environ.pop(variable, None)
                 else:
                     os.environ[variable] = value
-        for future in as_completed(futures):
+            child_end.close()
+        self.ready = False
+        self.job = None
+        self.sent_at = None
+
+    def give(self, job):
+        self.job, self.sent_at = job, time.perf_counter()
+        self.connection.send(job)
+
+    def receive(self):
+        """The next message, or None when the pipe broke (the process died, perhaps mid-message)."""
+        try:
+            return self.connection.recv()
+        except (EOFError, OSError, pickle.UnpicklingError, ValueError, TypeError, AttributeError):
+            return None
+
+    def alive(self):
+        return self.process.is_alive()
+
+
+def _stop_workers(pool, interrupts):
+    """End every worker: a clean stop to idle ones, SIGTERM to busy ones, SIGKILL after the grace time
+    (at once after a second Ctrl-C); then reap them so no process is left behind."""
+    interrupts.stopping = True
+    for worker in pool:
+        if worker.alive():
             try:
-                yield future.result()
-            except BrokenProcessPool:
-                raise CalculationError(
-                    "a worker process died (a crash inside a calculation library, or out of memory); "
-                    "finished compounds are stored: rerun the same command to continue"
-                ) from None
+                if worker.ready and worker.job is None and not interrupts.requested:
+                    worker.connection.send(None)
+                else:
+                    worker.process.terminate()
+            except OSError:
+                worker.process.terminate()
+    deadline = time.monotonic() + STOP_GRACE_S
+    while any(worker.alive() for worker in pool) and time.monotonic() < deadline and not interrupts.forced:
+        time.sleep(0.01)
+    for worker in pool:
+        if worker.alive():
+            worker.process.kill()
+    for worker in pool:
+        worker.process.join(timeout=5.0)
+        worker.connection.close()
+
+
+def _local_outcomes(jobs, workers, threads_per_worker, interrupts, note=log.warning):
+    """Outcomes as they finish, from spawned local processes holding one job each.
+
+    A worker that dies is replaced; the compound it held is tried once more on the new worker and then
+    given up as failed ("worker process died (signal 9) twice"). Stops handing out jobs when an
+    interrupt is requested, after yielding the outcomes already sent back.
+    """
+    context = multiprocessing.get_context("spawn")
+    queue = collections.deque(jobs)
+    deaths = {}  # compound name -> how its workers died
+    pool = []
+    start_failures = 0
+
+    def start_worker(job=None):
+        worker = _Worker(context, threads_per_worker)
+        worker.job = job  # handed over once the worker says it is ready
+        pool.append(worker)
+
+    def next_job():
+        return queue.popleft() if queue and not interrupts.requested else None
+
+    try:
+        for _ in range(min(workers, len(queue))):
+            start_worker(next_job())
+        while any(worker.job is not None or not worker.ready for worker in pool) and not interrupts.requested:
+            waiting = [worker.connection for worker in pool] + [worker.process.sentinel for worker in pool]
+            ready = set(multiprocessing.connection.wait(waiting, timeout=POLL_S))
+            for worker in list(pool):
+                if worker.connection not in ready and worker.process.sentinel not in ready:
+                    continue
+                message = worker.receive() if worker.connection.poll() or worker.connection in ready else None
+                if message is not None:
+                    kind, payload = message
+                    if kind == "ready":
+                        worker.ready, start_failures = True, 0
+                        job, worker.job = worker.job or next_job(), None
+                    else:
+                        yield payload
+                        job = next_job()
+                        worker.job = None
+                    if job is not None:
+                        try:
+                            worker.give(job)
+                        except OSError:  # died meanwhile: found dead on the next round, holding the job
+                            pass
+                    elif worker.ready:
+                        try:
+                            worker.connection.send(None)  # nothing left for it: let it end
+                        except OSError:
+                            pass
+                    continue
+                if worker.alive():  # pipe readable but broken while the process is still going
+                    worker.process.kill()
+                worker.process.join(timeout=5.0)
+                worker.connection.close()
+                pool.remove(worker)
+                job = worker.job
+                if not worker.ready:
+                    start_failures += 1
+                    if start_failures >= START_FAILURES:
+                        raise CalculationError(
+                            f"local worker processes end while starting ({_death(worker.process.exitcode)}); "
+                            "check that 'python -m torsionscan.cli --version' works in this environment"
+                        )
+                    if job is not None and not interrupts.requested:
+                        start_worker(job)  # it never started the job: no attempt counted
+                    continue
+                if job is None:
+                    job = next_job()
+                    if job is not None:
+                        start_worker(job)
+                    continue
+                if interrupts.requested:  # ended by the interrupt itself, or not worth a retry now: stays pending
+                    continue
+                how = deaths.setdefault(job["name"], [])
+                how.append(_death(worker.process.exitcode))
+                if len(how) == 1:
+                    note(f"{job['name']}: worker process died ({how[0]}); trying it once more in a new worker")
+                    start_worker(job)
+                    continue
+                cause = f"({how[0]}) twice" if how[0] == how[1] else f"twice ({how[0]}, then {how[1]})"
+                yield {"name": job["name"], "status": "failed", "worker": f"{socket.gethostname()}:{worker.process.pid}",
+                       "reason": f"worker process died {cause}: a crash inside a calculation library or out of memory",
+                       "wall_time_s": time.perf_counter() - worker.sent_at}
+                job = next_job()
+                if job is not None:
+                    start_worker(job)
+        if interrupts.requested:  # outcomes already sent back are kept
+            for worker in pool:
+                while worker.job is not None and worker.ready and worker.connection.poll():
+                    message = worker.receive()
+                    if message is None:
+                        break
+                    if message[0] == "outcome":
+                        worker.job = None
+                        yield message[1]
     finally:
-        pool.shutdown(wait=False, cancel_futures=True)
+        _stop_workers(pool, interrupts)
 
 
-def _cluster_outcomes(jobs, address):
-    """Outcomes as they finish, computed on a Dask distributed cluster."""
+def _cluster_outcomes(jobs, address, interrupts, worker_wait_s):
+    """Outcomes as they finish, computed on a Dask distributed cluster. Raises CalculationError when the
+    scheduler has had no worker for worker_wait_s seconds."""
     try:
         from distributed import Client, as_completed as dask_completed
     except ImportError:
@@ -178,12 +398,37 @@ def _cluster_outcomes(jobs, address):
         raise InputError(f"cannot reach a Dask scheduler at {address} ({error}); start one or check the address") from None
     with client:
         futures = {client.submit(scan_compound, job, pure=False): job["name"] for job in jobs}
-        for future in dask_completed(futures):
-            try:
-                yield future.result()
-            except Exception as error:  # e.g. the worker running it died repeatedly
-                yield {"name": futures[future], "status": "failed",
-                       "reason": f"cluster error: {type(error).__name__}: {error}"}
+        completed = dask_completed(futures)
+        alone_since = time.monotonic()  # since when no worker has been connected
+        checked = 0.0
+        try:
+            while not completed.is_empty() and not interrupts.requested:
+                for future in completed.next_batch(block=False) if completed.has_ready() else ():
+                    try:
+                        yield future.result()
+                    except Exception as error:  # e.g. the worker running it died repeatedly
+                        yield {"name": futures[future], "status": "failed",
+                               "reason": f"cluster error: {type(error).__name__}: {error}"}
+                now = time.monotonic()
+                if now - checked >= 1.0:
+                    checked = now
+                    try:
+                        connected = bool(client.nthreads())
+                    except Exception as error:  # the scheduler went away
+                        raise CalculationError(
+                            f"lost the Dask scheduler at {address} ({type(error).__name__}: {error}); finished "
+                            "compounds are stored: restart it and rerun the same command to continue") from None
+                    if connected:
+                        alone_since = now
+                    elif now - alone_since >= worker_wait_s:
+                        left = completed.count()
+                        raise CalculationError(
+                            f"the Dask scheduler at {address} has had no worker for {worker_wait_s:g} s "
+                            f"({left} compound(s) not computed); start workers ('dask worker {address}') and "
+                            "rerun the same command to continue")
+                time.sleep(0.05)
+        finally:
+            client.cancel(list(futures))
 
 
 def store_outcome(store, outcome, session_id, out_dir):
@@ -209,9 +454,14 @@ def run_batch(list_path, out_dir, settings, options=BatchOptions(), progress=Non
     """Scan every pending compound of a list into out_dir; returns a BatchSummary.
 
     settings: ScanSettings. progress: optional object with start(to_compute, already_done),
-    update(outcome) after each compound is stored, and close() (see output.progress).
-    Raises InputError for an unreadable list or a run folder made with other settings.
+    update(outcome) after each compound is stored, close() and optionally note(text) (see output.progress).
+    Raises InputError for an unreadable list, a run folder made with other settings or an --out that is a
+    file; StorageError when the run folder cannot be written (checked before any calculation) or fills up
+    (the batch stops; everything stored stays); CalculationError when the worker processes cannot start or
+    a Dask scheduler has no worker; BatchInterrupted (a KeyboardInterrupt) after Ctrl-C.
     """
+    from .output import check_output_folder
+
     started = time.perf_counter()
     settings.check()
     options.check()
@@ -224,6 +474,7 @@ def run_batch(list_path, out_dir, settings, options=BatchOptions(), progress=Non
         if entry.note:
             log.warning("%s (%s): %s", list_path, entry.where, entry.note)
     out_dir = Path(out_dir)
+    check_output_folder(out_dir)
     with RunStore(out_dir) as store:
         claimed = settings.as_dict()
         if options.rescore:
@@ -242,24 +493,50 @@ def run_batch(list_path, out_dir, settings, options=BatchOptions(), progress=Non
         jobs = [make_job(store.compound(name), settings, options) for name in todo if name in listed]
         workers = options.workers or usable_cores()
         session = store.start_session(command, None if options.cluster else workers, options.cluster)
-        if options.cluster:
-            outcomes = _cluster_outcomes(jobs, options.cluster)
-        else:
-            outcomes = _local_outcomes(jobs, min(workers, max(len(jobs), 1)), options.threads_per_worker)
+        note = getattr(progress, "note", None) or log.warning
         computed = 0
         if progress:
             progress.start(len(jobs), store.counts()["done"])
-        try:
-            for outcome in outcomes:
-                store_outcome(store, outcome, session, out_dir)
-                computed += 1
+        with _Interrupts() as interrupts:
+            if options.cluster:
+                outcomes = _cluster_outcomes(jobs, options.cluster, interrupts, options.cluster_worker_wait_s)
+            else:
+                outcomes = _local_outcomes(jobs, min(workers, max(len(jobs), 1)), options.threads_per_worker,
+                                           interrupts, note)
+            stopped = True  # by an exception; finish_session must not hide it
+            try:
+                for outcome in outcomes:
+                    try:
+                        store_outcome(store, outcome, session, out_dir)
+                    except StorageError as error:
+                        raise StorageError(f"{error}; the batch stopped, every compound finished before is stored "
+                                           f"({_done_count(store)}): rerun the same command to continue") from None
+                    computed += 1
+                    if progress:
+                        progress.update(outcome)
+                stopped = False
+            finally:
+                outcomes.close()
+                try:
+                    store.finish_session(session)
+                except StorageError:
+                    if not stopped:
+                        raise
                 if progress:
-                    progress.update(outcome)
-        finally:
-            outcomes.close()
-            store.finish_session(session)
-            if progress:
-                progress.close()
+                    progress.close()
+            if interrupts.requested:
+                counts = store.counts()
+                raise BatchInterrupted(
+                    f"{computed} compound(s) stored by this run, {counts['done']} done in {out_dir} and "
+                    f"{counts['pending']} still to compute")
         failures = [(name, store.compound(name)["reason"]) for name in store.names("failed")]
         counts = store.counts()
     return BatchSummary(counts, computed, failures, time.perf_counter() - started, out_dir)
+
+
+def _done_count(store):
+    """'N done' of a run database, or '' when even that cannot be read."""
+    try:
+        return f"{store.counts()['done']} done"
+    except StorageError:
+        return "count unavailable"

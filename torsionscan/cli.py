@@ -507,8 +507,15 @@ def main(argv=None):
                         format="torsionscan: %(levelname)s: %(message)s")
     try:
         return args.handler(args)
-    except KeyboardInterrupt:
-        print("\ntorsionscan: interrupted; finished compounds are stored: rerun the same command to continue",
+    except KeyboardInterrupt as interrupt:
+        import signal
+
+        try:
+            signal.signal(signal.SIGINT, signal.SIG_IGN)  # a further Ctrl-C while leaving must not end in a traceback
+        except ValueError:  # not the main thread: signals do not reach it anyway
+            pass
+        detail = f" ({interrupt})" if str(interrupt) else ""
+        print(f"\ntorsionscan: interrupted{detail}; finished compounds are stored: rerun the same command to continue",
               file=sys.stderr)
         return 130
     except TorsionScanError as error:

@@ -10,8 +10,13 @@ compounds (one row each: input, status pending/done/failed, reason, and for a do
 whole result as ScanResult.to_dict() JSON text, the record everything else is rebuilt from) and
 points (derived from the result, for queries only: one row per profile point, energies in
 kcal/mol relative to the bond's profile zero, NULL where there is no value).
+
+A database that cannot be read or written (a full disk, a read-only location, a corrupt or
+non-SQLite file, a lock held elsewhere) raises StorageError from every method; errors about one
+row's values (sqlite3.IntegrityError and the like) are left to the caller.
 """
 
+import functools
 import hashlib
 import json
 import math
@@ -20,7 +25,7 @@ from datetime import datetime, timezone
 from pathlib import Path
 
 from .version import __version__
-from .errors import InputError
+from .errors import InputError, StorageError
 from .molecule import safe_name
 from .records import ScanResult
 
@@ -101,6 +106,48 @@ def _differences(old, new, prefix=""):
     return changes
 
 
+# SQLite's primary result codes that mean the database file, not one row, is the problem
+_SQLITE_PERM, _SQLITE_BUSY, _SQLITE_LOCKED, _SQLITE_READONLY = 3, 5, 6, 8
+_SQLITE_IOERR, _SQLITE_CORRUPT, _SQLITE_FULL, _SQLITE_CANTOPEN, _SQLITE_NOTADB = 10, 11, 13, 14, 26
+_ROW_ERRORS = (sqlite3.IntegrityError, sqlite3.InterfaceError, sqlite3.ProgrammingError, sqlite3.DataError)
+
+
+def storage_problem(folder, error):
+    """The StorageError for an sqlite3 error about the database file of the run in `folder`; None for an
+    error about one row's values."""
+    if isinstance(error, _ROW_ERRORS) or not isinstance(error, sqlite3.DatabaseError):
+        return None
+    code = (getattr(error, "sqlite_errorcode", None) or 0) & 0xFF
+    where = f"{DATABASE_NAME} in {folder}"
+    if code in (_SQLITE_CORRUPT, _SQLITE_NOTADB) or type(error) is sqlite3.DatabaseError:
+        return StorageError(f"{where} is not a readable run database ({error}); move it away or choose another --out")
+    if code == _SQLITE_FULL:
+        return StorageError(f"cannot write {where} ({error}): free space, then rerun the same command to continue")
+    if code in (_SQLITE_BUSY, _SQLITE_LOCKED):
+        return StorageError(f"{where} is locked by another process ({error}); wait for it to finish or choose "
+                            "another --out")
+    if code in (_SQLITE_READONLY, _SQLITE_CANTOPEN, _SQLITE_PERM):
+        return StorageError(f"cannot open {where} for writing ({error}): choose a writable --out or fix its "
+                            "permissions")
+    return StorageError(f"cannot use {where} ({error}): check the disk and the folder, then rerun the same command")
+
+
+def _guarded(method):
+    """A RunStore method whose database-file errors become StorageError."""
+
+    @functools.wraps(method)
+    def guarded(self, *args, **kwargs):
+        try:
+            return method(self, *args, **kwargs)
+        except sqlite3.Error as error:
+            problem = storage_problem(self.path.parent, error)
+            if problem is None:
+                raise
+            raise problem from None
+
+    return guarded
+
+
 class RunStore:
     """A run folder's database. Open with RunStore(folder); use as a context manager to close it."""
 
@@ -108,14 +155,19 @@ class RunStore:
         self.path = Path(folder) / DATABASE_NAME
         if not create and not self.path.is_file():
             raise InputError(f"{folder} holds no batch run ({DATABASE_NAME} missing); give the --out folder of a batch")
-        self.path.parent.mkdir(parents=True, exist_ok=True)
-        self._db = sqlite3.connect(self.path, timeout=60.0)
-        self._db.row_factory = sqlite3.Row
+        self._db = None
         try:
+            self.path.parent.mkdir(parents=True, exist_ok=True)
+            self._db = sqlite3.connect(self.path, timeout=60.0)
+            self._db.row_factory = sqlite3.Row
             self._open(folder)
-        except sqlite3.DatabaseError as error:
+        except sqlite3.Error as error:
             self.close()
-            raise InputError(f"{self.path} is not a readable run database ({error}); use a new --out folder") from None
+            raise (storage_problem(folder, error) or StorageError(f"cannot open {self.path} ({error})")) from None
+        except OSError as error:
+            self.close()
+            raise StorageError(f"cannot create {self.path.parent} ({error.strerror or error}): choose a writable "
+                               "--out") from None
         except InputError:
             self.close()
             raise
@@ -138,7 +190,8 @@ class RunStore:
             self._db.executescript(_TABLES)
 
     def close(self):
-        self._db.close()
+        if self._db is not None:
+            self._db.close()
 
     def __enter__(self):
         return self
@@ -147,6 +200,7 @@ class RunStore:
         self.close()
 
     # -- run settings -------------------------------------------------------------------------
+    @_guarded
     def run_info(self):
         """The run table as a dict (values are strings; 'settings' is JSON text)."""
         return {row["key"]: row["value"] for row in self._db.execute("SELECT key, value FROM run")}
@@ -156,6 +210,7 @@ class RunStore:
         text = self.run_info().get("settings")
         return None if text is None else json.loads(text)
 
+    @_guarded
     def claim_settings(self, settings, list_file):
         """Record the settings of a new run, or check that a resumed run uses the same ones.
 
@@ -184,6 +239,7 @@ class RunStore:
             )
 
     # -- sessions -------------------------------------------------------------------------------
+    @_guarded
     def start_session(self, command, workers=None, cluster=None):
         """Record one invocation; returns its id."""
         with self._db:
@@ -193,11 +249,13 @@ class RunStore:
             )
         return cursor.lastrowid
 
+    @_guarded
     def finish_session(self, session_id):
         with self._db:
             self._db.execute("UPDATE sessions SET finished_utc = ? WHERE id = ?", (utc_now(), session_id))
 
     # -- compounds ------------------------------------------------------------------------------
+    @_guarded
     def add_compounds(self, entries):
         """Register list entries (compounds.CompoundEntry) as pending; returns the names to keep.
 
@@ -236,6 +294,7 @@ class RunStore:
                 )
                 position += 1
 
+    @_guarded
     def names(self, status=None):
         """Compound names in list order, optionally only those with one status."""
         if status is None:
@@ -244,6 +303,7 @@ class RunStore:
             rows = self._db.execute("SELECT name FROM compounds WHERE status = ? ORDER BY position", (status,))
         return [row[0] for row in rows]
 
+    @_guarded
     def compound(self, name):
         """One compound's row as a dict (input_json decoded into 'input', 'where', 'extra'; without the
         result: see result())."""
@@ -255,6 +315,7 @@ class RunStore:
         record.update(json.loads(record.pop("input_json")))
         return record
 
+    @_guarded
     def counts(self):
         """{'pending': n, 'done': n, 'failed': n}."""
         counts = {"pending": 0, "done": 0, "failed": 0}
@@ -265,6 +326,7 @@ class RunStore:
     def _clear_points(self, name):
         self._db.execute("DELETE FROM points WHERE compound = ?", (name,))
 
+    @_guarded
     def record_done(self, name, result, session_id, wall_time_s, peak_memory_mb=None, worker=None,
                     rescore_failure=""):
         """Store a finished compound (a ScanResult) in one transaction: its result and its profile points.
@@ -287,6 +349,7 @@ class RunStore:
                 (text, rescore_failure, session_id, wall_time_s, peak_memory_mb, worker, utc_now(), name),
             )
 
+    @_guarded
     def record_failed(self, name, reason, session_id, wall_time_s=None, peak_memory_mb=None, worker=None):
         """Mark a compound failed with its reason (one transaction)."""
         with self._db:
@@ -298,6 +361,7 @@ class RunStore:
                 (reason, session_id, wall_time_s, peak_memory_mb, worker, utc_now(), name),
             )
 
+    @_guarded
     def result(self, name):
         """A done compound's ScanResult, exactly as stored (KeyError if it is not done)."""
         row = self._db.execute("SELECT result_json FROM compounds WHERE name = ?", (name,)).fetchone()

@@ -2,16 +2,21 @@
 
 A result folder is written from a ScanResult alone (write_results), so a stored run can
 rebuild it. Every file is written to a temporary name in the folder and moved into place,
-so a crash never leaves a half-written file behind.
+so a crash never leaves a half-written file behind; a new result folder is written whole under
+a temporary sibling name and renamed, so it is either complete or absent. A file that cannot be
+written (disk full, read-only location) raises StorageError.
 """
 
+import errno
 import io
 import os
+import shutil
 import tempfile
 from pathlib import Path
 
 import matplotlib.pyplot as plt
 
+from ..errors import InputError, StorageError
 from .drawing import molecule_drawing
 from .plot import populations_figure, profile_figure
 from .structures import minima_sdf_text, scan_xyz_text
@@ -21,18 +26,53 @@ _UMASK = os.umask(0o022)
 os.umask(_UMASK)
 
 
+def storage_error(path, error):
+    """StorageError for an OSError met writing `path`: what failed, why, and what to do."""
+    why = error.strerror or str(error)
+    if error.errno in (errno.ENOSPC, errno.EDQUOT):
+        advice = "free space (or raise the quota) or choose another location"
+    elif error.errno in (errno.EROFS, errno.EACCES, errno.EPERM):
+        advice = "choose a writable location or fix its permissions"
+    else:
+        advice = "check the location or choose another one"
+    return StorageError(f"cannot write {path} ({why}): {advice}")
+
+
 def atomic_write(path, write):
-    """Run write(temporary_path) and move the result to `path`."""
+    """Run write(temporary_path) and move the result to `path`. Raises StorageError when it cannot be written."""
     path = Path(path)
-    handle, temporary = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=path.suffix)
-    os.close(handle)
-    temporary = Path(temporary)
+    temporary = None
     try:
+        handle, temporary = tempfile.mkstemp(dir=path.parent, prefix=f".{path.name}.", suffix=path.suffix)
+        os.close(handle)
+        temporary = Path(temporary)
         write(temporary)
         os.chmod(temporary, 0o666 & ~_UMASK)  # the usual permissions of a new file, not mkstemp's 0600
         os.replace(temporary, path)
+    except OSError as error:
+        raise storage_error(path, error) from None
     finally:
-        temporary.unlink(missing_ok=True)
+        if temporary is not None:
+            temporary.unlink(missing_ok=True)
+
+
+def check_output_folder(folder):
+    """Make sure results can be written into `folder` (created if missing) before anything is computed.
+
+    Raises InputError when it (or a folder above it) is a file, StorageError when it cannot be created or
+    written (read-only, no permission, disk full)."""
+    folder = Path(folder)
+    if folder.exists() and not folder.is_dir():
+        raise InputError(f"{folder} is a file, not a folder: choose another --out")
+    try:
+        folder.mkdir(parents=True, exist_ok=True)
+        handle, probe = tempfile.mkstemp(dir=folder, prefix=".write-test.")
+        os.close(handle)
+        os.unlink(probe)
+    except (NotADirectoryError, FileExistsError):
+        raise InputError(f"{folder} cannot be a folder: part of its path is a file; choose another --out") from None
+    except OSError as error:
+        raise storage_error(folder, error) from None
 
 
 def bond_stem(label):
@@ -90,10 +130,39 @@ def write_results(result, out_dir, figures=None):
     _structure.svg/.png and, when the bond has a torsion fit, its files (output.forcefield); the
     compound's structure.svg/.png (render_drawings); then summary.json.
     figures: already rendered figures (render_figures); drawn here when not given.
+
+    A folder that is missing or empty is written under a temporary sibling name and renamed into place
+    (complete or absent); files of an existing folder are replaced one by one, each atomically, and its
+    other files are left alone. Raises InputError when out_dir is a file, StorageError when it cannot be
+    written.
     """
     out_dir = Path(out_dir)
-    out_dir.mkdir(parents=True, exist_ok=True)
     figures = render_figures(result) if figures is None else figures
+    if out_dir.exists() and not out_dir.is_dir():
+        raise InputError(f"{out_dir} is a file, not a folder: choose another --out")
+    if out_dir.is_dir() and any(out_dir.iterdir()):
+        _write_files(result, out_dir, figures)
+        return out_dir
+    temporary = None
+    try:
+        out_dir.parent.mkdir(parents=True, exist_ok=True)
+        temporary = Path(tempfile.mkdtemp(dir=out_dir.parent, prefix=f".{out_dir.name}.", suffix=".partial"))
+        _write_files(result, temporary, figures)
+        os.chmod(temporary, 0o777 & ~_UMASK)  # a new folder's usual permissions, not mkdtemp's 0700
+        os.replace(temporary, out_dir)  # also replaces an empty folder of that name
+        temporary = None
+    except OSError as error:
+        raise storage_error(out_dir, error) from None
+    except StorageError as error:  # name the folder asked for, not its temporary sibling
+        raise StorageError(str(error).replace(str(temporary), str(out_dir))) from None
+    finally:
+        if temporary is not None:
+            shutil.rmtree(temporary, ignore_errors=True)
+    return out_dir
+
+
+def _write_files(result, out_dir, figures):
+    """Every file of write_results into an existing folder."""
     for name, data in render_drawings(result).items():
         atomic_write(out_dir / name, lambda p, d=data: p.write_bytes(d))
     for bond in result.bonds:
@@ -108,4 +177,3 @@ def write_results(result, out_dir, figures=None):
 
             write_torsion_fit(result, bond, out_dir)
     atomic_write(out_dir / "summary.json", lambda p: write_summary(result, p))
-    return out_dir

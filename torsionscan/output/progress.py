@@ -63,6 +63,12 @@ class BatchProgress:
         if self.interactive:
             self._draw()
 
+    def note(self, text):
+        """Show one line about the run (a worker replaced, say) without counting a compound."""
+        self._say(text)
+        if self.interactive:
+            self._draw()
+
     def close(self):
         if self.interactive:
             self.stream.write("\n")
