@@ -142,10 +142,10 @@ def test_bonds_command_lists_one_based_bonds(capsys):
         (["scan", "C=CC=C", "--step", "7"], 2, "divide 180"),
         (["scan", "C=CC=C", "--temperature", "nan"], 2, "temperature"),
         (["scan", "C=CC=C", "--scis-window", "120"], 2, "scis-window"),
-        # a reference atom chosen by hand that is not bonded to its bond atom (atom 4 is not bonded to 2)
-        (["scan", "C=CC=C", "--bond", "4-2-3-4"], 2, "bonded chain"),
-        (["scan", "C=CC=C", "--temperature", "0"], 2, "above 0 K"),
-        (["scan", "C=CC=C", "--temperature", "-5"], 2, "above 0 K"),
+        # a reference atom chosen by hand that is not bonded to its bond atom (hydrogen 5 is bonded to 1, not 2)
+        (["scan", "C=CC=C", "--bond", "5-2-3-4"], 2, "bonded chain"),
+        (["scan", "C=CC=C", "--temperature", "0"], 2, "from 1 to 5000 K"),
+        (["scan", "C=CC=C", "--temperature", "-5"], 2, "from 1 to 5000 K"),
     ],
 )
 def test_bad_input_gives_one_line_and_exit_code(capsys, argv, code, words):

@@ -4,23 +4,45 @@
 
 import argparse
 import logging
+import os
+import re
 import statistics
 import sys
+import tempfile
 from pathlib import Path
 
 from . import __version__
-from .errors import InputError, TorsionScanError
+from .errors import InputError, StorageError, TorsionScanError
 
 log = logging.getLogger("torsionscan")
 DEMO_LIST = Path("inputs/demo_compounds.csv")
 PARTIAL_FAILURE = 4  # exit status of a batch in which some compounds failed
 
 
+class _Parser(argparse.ArgumentParser):
+    """argparse with its errors as one line, like every other error of the command."""
+
+    def error(self, message):
+        self.exit(2, f"torsionscan: error: {message}; see '{self.prog} --help'\n")
+
+
 def _add_molecule_options(parser):
-    parser.add_argument("molecule", help="SMILES string, or a MOL/SDF/XYZ file")
+    parser.add_argument("molecule", nargs="?",
+                        help="SMILES string, or a MOL/SDF/XYZ file (a text that is both: use --smiles or --file)")
+    parser.add_argument("--smiles", metavar="TEXT", help="the molecule as SMILES, never read as a file name")
+    parser.add_argument("--file", metavar="PATH", help="the molecule from a MOL/SDF/XYZ file, never read as SMILES")
     parser.add_argument("--record", type=int, default=1, help="record number in a multi-record SDF (1-based)")
     parser.add_argument("--charge", type=int, default=None, help="total charge (default: from the input; 0 for XYZ)")
     parser.add_argument("--unpaired-electrons", type=int, default=0, help="number of unpaired electrons (default 0)")
+    parser.add_argument("--allow-large", action="store_true",
+                        help="scan a molecule above the 300-atom limit anyway (hours to days per bond)")
+
+
+def _molecule_source(args):
+    """The molecule the arguments name: a SMILES string or a file Path (molecule.molecule_source)."""
+    from .molecule import molecule_source
+
+    return molecule_source(args.molecule, smiles=args.smiles, file=args.file)
 
 
 def _add_scan_options(parser):
@@ -60,6 +82,10 @@ def _add_batch_options(parser):
                         help="re-optimise every scan at a DFT level inside its worker (see 'scan --refine')")
     parser.add_argument("--refine-points", choices=["all", "stationary"], default="all",
                         help="with --refine: every grid point (default) or only the stationary points")
+    parser.add_argument("--allow-outside-files", action="store_true",
+                        help="read structure_file entries that lie outside the list's folder")
+    parser.add_argument("--allow-large", action="store_true",
+                        help="scan molecules above the 300-atom limit too (hours to days per bond)")
 
 
 def _add_refine_options(parser, level_option, required=False):
@@ -108,7 +134,8 @@ def _settings(args):
     return ScanSettings(
         step_deg=args.step, conformers=args.conformers, seed=args.seed, method=args.method,
         engine=args.engine, temperatures_k=tuple(args.temperature), scis_window_deg=args.scis_window,
-        solvent=args.solvent.lower() if args.solvent else None, solvation_model=args.solvation_model,
+        solvent=args.solvent.strip().lower() if args.solvent is not None else None,
+        solvation_model=args.solvation_model,
         frequencies=not args.no_frequencies, temperature_range_k=tuple(args.temperature_range),
     )
 
@@ -284,13 +311,65 @@ def _vibration_lines(analysis, symmetric_rotor=False):
     return lines
 
 
+_CLUSTER_ADDRESS = re.compile(r"(?:(?:tcp|tls|ws|wss|ucx)://)?(?:\[[0-9A-Fa-f:.]+\]|[A-Za-z0-9](?:[A-Za-z0-9.-]*[A-Za-z0-9])?)"
+                              r"(?::(?P<port>[0-9]{1,5}))?/?")
+
+
+def _check_cluster_address(address):
+    """InputError unless address has the form of a Dask scheduler address (scheme://host:port)."""
+    if address is None:
+        return
+    text = address.strip()
+    match = _CLUSTER_ADDRESS.fullmatch(text)
+    if re.fullmatch(r"inproc://\S+", text) or (match and (not match["port"] or 0 < int(match["port"]) < 65536)):
+        return
+    raise InputError(f"--cluster {address!r} is not a Dask scheduler address; give one like tcp://scheduler-host:8786")
+
+
+def _check_output_folder(folder, option="--out"):
+    """Before anything is computed: InputError when the folder (or where it would be made) is a file,
+    StorageError when nothing can be written there."""
+    folder = Path(folder)
+    probe = folder
+    while not os.path.lexists(probe) and probe != probe.parent:
+        probe = probe.parent
+    if not probe.is_dir():
+        where = "" if probe == folder else f" ({probe} is a file, so the folder cannot be made there)"
+        raise InputError(f"{option} {folder} is a file, not a folder{where}; give a folder (it is created if needed)")
+    try:
+        handle, name = tempfile.mkstemp(dir=probe, prefix=".torsionscan-write-check-")
+        os.close(handle)
+        os.unlink(name)
+    except OSError as error:
+        raise StorageError(f"cannot write {option} {folder}: {probe} is not writable ({error.strerror}); "
+                           "choose another folder or make it writable") from None
+
+
+def _check_threads(option, value):
+    if value is not None and value < 1:
+        raise InputError(f"{option} must be at least 1")
+
+
 def run_scan(args):
     from .driver import scan
+    from .molecule import check_size, load_molecule
     from .output import write_results
 
     options = _fit_options(args)
     options.check()
     settings = _settings(args)
+    settings.check()
+    _check_threads("--dft-threads", args.dft_threads)
+    if args.bond is not None and not args.bond.strip():
+        raise InputError("--bond is empty; give two or four 1-based atom numbers, e.g. 3-4 or 2-3-4-5")
+    source = _molecule_source(args)
+    molecule = load_molecule(source, name=args.name, charge=args.charge, unpaired_electrons=args.unpaired_electrons,
+                             record=args.record)
+    warning = check_size(molecule.mol.GetNumAtoms(), args.allow_large, settings.frequencies)
+    if warning:
+        log.warning("%s", warning)
+    out_dir = args.out or Path("results") / molecule.name
+    _check_output_folder(out_dir)
     level = refine_level = None
     if args.rescore:
         from .rescore import check_rescoring
@@ -302,16 +381,13 @@ def run_scan(args):
         refine_level = check_refinement(args.refine, settings, args.refine_points, args.reference)
         _check_processes(args.processes)
         if args.reference:
-            from .molecule import load_molecule
             from .reference import check_reference
 
-            molecule = load_molecule(args.molecule, charge=args.charge, unpaired_electrons=args.unpaired_electrons,
-                                     record=args.record)
             check_reference(molecule.symbols, molecule.charge, molecule.unpaired_electrons)
     elif args.reference:
         raise InputError("--reference needs --refine LEVEL: the reference energies are computed at the refined structures")
     result = scan(
-        args.molecule, bond=args.bond, name=args.name, charge=args.charge,
+        source, bond=args.bond, name=args.name, charge=args.charge,
         unpaired_electrons=args.unpaired_electrons, record=args.record, settings=settings,
     )
     if level is not None:
@@ -323,7 +399,6 @@ def run_scan(args):
         from .workflows import refine_with_dft
 
         result = refine_with_dft(result, refine_level, args.refine_points, args.reference, args.processes)
-    out_dir = args.out or Path("results") / result.name
     write_results(result, out_dir)
     print(format_summary(result, out_dir))
     if args.fit_for:
@@ -337,6 +412,7 @@ def run_scan(args):
 def run_rescore(args):
     from .workflows import rescore_folder
 
+    _check_threads("--threads", args.threads)
     result = rescore_folder(args.folder, args.level, args.threads)
     for bond in result.bonds:
         print("\n".join(_rescored_lines(result, bond)))
@@ -375,7 +451,7 @@ def run_fit(args):
 def run_bonds(args):
     from .molecule import find_conjugated_bonds, load_molecule, numbered_smiles
 
-    molecule = load_molecule(args.molecule, charge=args.charge, unpaired_electrons=args.unpaired_electrons,
+    molecule = load_molecule(_molecule_source(args), charge=args.charge, unpaired_electrons=args.unpaired_electrons,
                              record=args.record)
     bonds = find_conjugated_bonds(molecule)
     print(f"{numbered_smiles(molecule.mol)}: {len(bonds)} conjugated single bond(s); atom numbers are 1-based, "
@@ -418,6 +494,18 @@ def run_batch_command(args):
     return PARTIAL_FAILURE if outcome.failures else 0
 
 
+def run_batch_checked(args):
+    """The batch's checks that need no list (settings, scheduler address, run folder), then the batch,
+    reading the list with the permissions the options give."""
+    from .compounds import list_policy
+
+    _settings(args).check()
+    _check_cluster_address(args.cluster)
+    _check_output_folder(args.out or Path("results") / args.list.stem)
+    with list_policy(allow_outside_files=args.allow_outside_files, allow_large=args.allow_large):
+        return run_batch_command(args)
+
+
 def run_report(args):
     from .runfolder import write_run_report
 
@@ -427,7 +515,7 @@ def run_report(args):
 
 
 def build_parser():
-    parser = argparse.ArgumentParser(
+    parser = _Parser(
         prog="torsionscan",
         description="Relaxed GFN-xTB torsion scans of conjugated single bonds (0° = s-cis, 180° = s-trans).",
     )
@@ -485,14 +573,14 @@ def build_parser():
     batch_parser.add_argument("--out", type=Path, help="run folder (default results/<list name>); reuse it to resume")
     _add_batch_options(batch_parser)
     _add_scan_options(batch_parser)
-    batch_parser.set_defaults(handler=run_batch_command)
+    batch_parser.set_defaults(handler=run_batch_checked)
 
     demo_parser = commands.add_parser("demo", help="batch-scan the demo compound list into results/demo")
     demo_parser.add_argument("list", nargs="?", type=Path, default=DEMO_LIST)
     demo_parser.add_argument("--out", type=Path, default=Path("results/demo"))
     _add_batch_options(demo_parser)
     _add_scan_options(demo_parser)
-    demo_parser.set_defaults(handler=run_batch_command)
+    demo_parser.set_defaults(handler=run_batch_checked)
 
     report_parser = commands.add_parser("report", help="rebuild a run folder's table, plots and HTML report from its database")
     report_parser.add_argument("run", type=Path, help="run folder of a batch")
@@ -502,7 +590,10 @@ def build_parser():
 
 def main(argv=None):
     """Entry point; returns the exit status."""
-    args = build_parser().parse_args(argv)
+    try:
+        args = build_parser().parse_args(argv)
+    except SystemExit as request:  # --help and --version (0), or a usage error already printed on one line (2)
+        return request.code if isinstance(request.code, int) else 2
     logging.basicConfig(level=logging.DEBUG if args.debug else logging.WARNING,
                         format="torsionscan: %(levelname)s: %(message)s")
     try:

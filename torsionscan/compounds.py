@@ -2,13 +2,22 @@
 
 Every compound in the list becomes a CompoundEntry, even one that cannot be scanned: such an
 entry carries a one-line `problem` instead of stopping the whole batch. Only problems with the
-file as a whole (missing, unknown format, no compounds, no SMILES column) raise InputError.
+file as a whole (missing, unreadable, unknown format, no compounds, no SMILES column) raise InputError.
+
+A table's `smiles` cell is only ever read as SMILES, never as a file name. A structure from a
+file comes through the `structure_file` column: a MOL/SDF (first record) or XYZ file, relative to
+the list's folder, and refused when it lies outside that folder (symbolic links followed) unless
+allowed. Molecules above molecule.MAX_ATOMS atoms are refused unless allowed. Both permissions are
+keyword arguments of read_compound_list; where a caller does not pass them, the values set by
+`list_policy(...)` around the call apply (default: neither allowed).
 
 Each entry gets a `name` that is unique within the list and whose folder name (safe_name,
 compared ignoring letter case) is unique too. Locations are 1-based: physical line numbers for
 text files (the header is line 1), record numbers for SDF.
 """
 
+import contextlib
+import contextvars
 import csv
 import hashlib
 import io
@@ -20,14 +29,36 @@ from pathlib import Path
 from rdkit import Chem
 
 from .errors import InputError
-from .molecule import safe_name
+from .molecule import check_size, load_molecule, safe_name
 
 _FORMATS = {
     ".csv": "csv", ".tsv": "tsv", ".smi": "smi", ".smiles": "smi", ".sdf": "sdf", ".sd": "sdf",
 }
 # list column / SDF data field -> the _Row attribute it fills
 _KNOWN_FIELDS = {"smiles": "smiles", "name": "name", "bond": "bond", "charge": "charge",
-                 "unpaired_electrons": "unpaired"}
+                 "unpaired_electrons": "unpaired", "structure_file": "structure_file"}
+_STRUCTURE_COLUMNS = ("smiles", "structure_file")  # SDF records: the record itself is the structure
+
+
+@dataclass(frozen=True)
+class ListPolicy:
+    """What reading a list may do beyond the safe default."""
+
+    allow_outside_files: bool = False  # structure_file entries outside the list's folder
+    allow_large: bool = False  # molecules above molecule.MAX_ATOMS atoms
+
+
+_POLICY = contextvars.ContextVar("torsionscan_list_policy", default=ListPolicy())
+
+
+@contextlib.contextmanager
+def list_policy(*, allow_outside_files=False, allow_large=False):
+    """Within this block, read_compound_list calls that do not pass these permissions use them."""
+    token = _POLICY.set(ListPolicy(bool(allow_outside_files), bool(allow_large)))
+    try:
+        yield
+    finally:
+        _POLICY.reset(token)
 _INTEGER = re.compile(r"[+-]?[0-9]+(?:\.0*)?")
 
 
@@ -78,6 +109,7 @@ class _Row:
     bond: str = ""
     charge: str = ""
     unpaired: str = ""
+    structure_file: str = ""
     extra: dict = field(default_factory=dict)
     problems: list = field(default_factory=list)
 
@@ -94,12 +126,17 @@ class _Row:
         return f"{self.unit}-{self.number}"
 
 
-def read_compound_list(path):
+def read_compound_list(path, *, allow_outside_files=None, allow_large=None):
     """Read a compound list: CSV with a header, .smi (SMILES then name), or multi-record SDF.
 
     The format follows the suffix: .csv (comma), .tsv (tab), .smi/.smiles, .sdf/.sd. Returns the
     entries in file order; entries that cannot be scanned have `problem` set.
+    allow_outside_files: read structure_file entries outside the list's folder; allow_large:
+    accept molecules above molecule.MAX_ATOMS atoms. None = as list_policy sets (default False).
     """
+    policy = _POLICY.get()
+    allow_outside_files = policy.allow_outside_files if allow_outside_files is None else allow_outside_files
+    allow_large = policy.allow_large if allow_large is None else allow_large
     path = Path(path)
     if not path.exists():
         raise InputError(f"compound list {path} not found; check the path")
@@ -120,11 +157,20 @@ def read_compound_list(path):
         rows = _read_table(_read_text(path), "," if kind == "csv" else "\t", path)
     if not rows:
         raise InputError(f"compound list {path} has no compounds; add at least one")
-    return _finish(rows)
+    return _finish(rows, path.resolve().parent, allow_outside_files, allow_large)
+
+
+def _read_bytes(path):
+    try:
+        return path.read_bytes()
+    except OSError as error:
+        raise InputError(f"compound list {path} cannot be read ({error.strerror}); check its permissions") from None
 
 
 def _read_text(path):
-    data = path.read_bytes()
+    data = _read_bytes(path)
+    if b"\0" in data:
+        raise InputError(f"compound list {path} is a binary file, not UTF-8 text; save it as CSV, .smi or SDF text")
     try:
         return data.decode("utf-8-sig")
     except UnicodeDecodeError as exc:
@@ -179,13 +225,13 @@ def _read_table(text, delimiter, path):
     if header is None:
         return []
     keys = [_normalise(h) for h in header]
-    if "smiles" not in keys:
+    if not any(key in keys for key in _STRUCTURE_COLUMNS):
         found = ", ".join(repr(h) for h in header)
         hint = ""
         if delimiter == "," and any(";" in h or "\t" in h for h in header):
             hint = " (the file seems to use ';' or tabs between columns; save it comma-separated)"
         raise InputError(
-            f"compound list {path} has no 'smiles' column{hint}; columns found: {found}; "
+            f"compound list {path} has no 'smiles' column (nor 'structure_file'){hint}; columns found: {found}; "
             f"add a header line such as 'name,smiles'"
         )
     for key in dict.fromkeys(k for k in keys if k):
@@ -222,8 +268,11 @@ def _read_table(text, delimiter, path):
                 setattr(row, _KNOWN_FIELDS[key], value)
             elif used[i]:
                 row.extra[title or f"column {i + 1}"] = value
-        if not row.smiles:
-            row.problems.append(f"no SMILES on line {first}")
+        if row.smiles and row.structure_file:
+            row.problems.append(f"line {first} gives both a SMILES and a structure_file; give one of them")
+        elif not row.smiles and not row.structure_file:
+            row.problems.append(f"no SMILES on line {first}" + (" (nor a structure_file)" if "structure_file" in keys
+                                                                else ""))
     return result
 
 
@@ -245,12 +294,16 @@ def _read_smi(text):
 
 
 def _read_sdf(path):
+    data = _read_bytes(path)
+    if not data.strip():
+        return []
+    if b"\0" in data:
+        raise InputError(f"compound list {path} is a binary file, not an SD text file; give a text .sdf file")
     try:
+        supplier = Chem.SDMolSupplier()
+        supplier.SetData(data.decode("utf-8-sig"), removeHs=False, sanitize=True)
+    except UnicodeDecodeError:  # the file's own bytes, so a data field in another encoding is reported by name
         supplier = Chem.SDMolSupplier(str(path), removeHs=False, sanitize=True)
-    except OSError:
-        if not path.read_bytes().strip():
-            return []
-        raise InputError(f"compound list {path} could not be opened as an SD file; check that it is one") from None
     result = []
     for index in range(len(supplier)):
         number = index + 1
@@ -292,7 +345,8 @@ def _apply_fields(row, title, fields):
     for key, value in fields.items():
         value = value.strip()
         known = _normalise(key)
-        if known in _KNOWN_FIELDS and known != "smiles" and known not in taken:  # SMILES come from the record
+        # the structure comes from the record, never from a SMILES or file field
+        if known in _KNOWN_FIELDS and known not in _STRUCTURE_COLUMNS and known not in taken:
             taken.add(known)
             setattr(row, _KNOWN_FIELDS[known], value)
         else:
@@ -374,8 +428,43 @@ def _first_free(candidates, names, folders):
             return candidate
 
 
-def _finish(rows):
-    """Turn rows into entries: defaults, integer checks, unique names."""
+def _atom_count(mol):
+    """Atoms of an RDKit molecule with its hydrogens, implicit ones included."""
+    return mol.GetNumAtoms() + sum(atom.GetTotalNumHs() for atom in mol.GetAtoms())
+
+
+def _check_smiles(row, problems):
+    """A table or .smi row's SMILES cell: only ever SMILES (never a file name); the parsed molecule or None."""
+    mol = Chem.MolFromSmiles(row.smiles)
+    if mol is None:
+        looks_like_file = "/" in row.smiles or "\\" in row.smiles or Path(row.smiles).suffix.lower() in (
+            ".sdf", ".sd", ".mol", ".xyz")
+        hint = ("; the smiles column holds SMILES only: name structure files in a structure_file column"
+                if looks_like_file else "; check the string")
+        problems.append(f"could not read {row.smiles!r} as SMILES {row.at}{hint}")
+    return mol
+
+
+def _structure_file(row, charge, base, allow_outside_files, problems):
+    """(MOL block with hydrogens, canonical SMILES) of a row's structure_file, or ("", "") with a problem."""
+    cell = row.structure_file
+    target = (base / cell).resolve()
+    if not allow_outside_files and not target.is_relative_to(base):
+        problems.append(f"structure_file {cell!r} {row.at} is outside the list's folder {base}; put the file "
+                        "beside the list or pass --allow-outside-files")
+        return "", ""
+    try:
+        molecule = load_molecule(target, charge=charge)
+    except InputError as error:
+        problems.append(f"structure_file {cell!r} {row.at}: {error}")
+        return "", ""
+    return Chem.MolToMolBlock(molecule.mol), molecule.smiles
+
+
+def _finish(rows, base, allow_outside_files=False, allow_large=False):
+    """Turn rows into entries: defaults, integer checks, SMILES and structure files, sizes, unique names.
+
+    base: the list's folder (absolute), which structure_file entries are relative to."""
     names = {}  # name -> row of its first use
     folders = {}  # lower-case folder name -> (name, row)
     entries = []
@@ -383,6 +472,19 @@ def _finish(rows):
         problems = list(row.problems)
         note = ""
         charge = _parse_integer(row.charge, "charge", row, problems)
+        mol = None
+        if row.structure_file and not row.smiles:
+            row.molblock, row.smiles = _structure_file(row, charge, base, allow_outside_files, problems)
+            mol = Chem.MolFromMolBlock(row.molblock, removeHs=False) if row.molblock else None
+        elif row.molblock:
+            mol = Chem.MolFromMolBlock(row.molblock, removeHs=False)
+        elif row.smiles:
+            mol = _check_smiles(row, problems)
+        if mol is not None:
+            try:
+                check_size(_atom_count(mol), allow_large)
+            except InputError as error:
+                problems.append(f"{row.where}: {error}")
         unpaired = _parse_integer(row.unpaired, "unpaired_electrons", row, problems)
         if unpaired is None:
             unpaired = 0

@@ -133,7 +133,7 @@ def _check_coordinates(coords, symbols, what):
     distances[np.diag_indices(len(coords))] = np.inf
     a, b = sorted(np.unravel_index(int(np.argmin(distances)), distances.shape))
     closest = float(distances[a, b])
-    names = f"atoms {a + 1} and {b + 1} ({symbols[a]}, {symbols[b]})"
+    names = f"atoms {a + 1} ({symbols[a]}) and {b + 1} ({symbols[b]})"
     if closest < COINCIDENT_ANGSTROM:
         raise InputError(f"{what}: {names} coincide ({closest:.3f} \u00c5 apart); fix the coordinates")
     if closest < MIN_DISTANCE_ANGSTROM:
@@ -262,8 +262,8 @@ def molecule_source(text=None, *, smiles=None, file=None):
         return smiles
     if text.strip() and Chem.MolFromSmiles(text.strip()) is not None and os.path.lexists(text):
         kind = "folder" if os.path.isdir(text) else "file"
-        raise InputError(f"{text!r} is both a SMILES string and the name of an existing {kind}; say which one "
-                         f"you mean with --smiles {text!r} or --file {text!r}")
+        raise InputError(f"{text!r} is ambiguous: both a SMILES string and the name of an existing {kind}; say which "
+                         f"one you mean with --smiles {text!r} or --file {text!r}")
     if text.strip() and Chem.MolFromSmiles(text.strip()) is None and (os.path.lexists(text) or _looks_like_path(text)):
         return Path(text)
     return text
@@ -276,10 +276,9 @@ def scan_cost_estimate_s(atom_count, frequencies=True):
     return gradients * GRADIENT_S_PER_ATOM2 * atom_count ** 2
 
 
-def check_size(molecule, allow_large=False, frequencies=True):
-    """The warning text for a molecule above LARGE_ATOMS atoms (None below); InputError above
-    MAX_ATOMS unless allow_large."""
-    count = molecule.mol.GetNumAtoms()
+def check_size(count, allow_large=False, frequencies=True):
+    """The warning text for a molecule of `count` atoms (hydrogens included) above LARGE_ATOMS (None
+    below); InputError above MAX_ATOMS unless allow_large."""
     if count > MAX_ATOMS and not allow_large:
         raise InputError(
             f"{count} atoms (hydrogens included) is above the {MAX_ATOMS}-atom limit: a scan would take about "
