@@ -306,6 +306,16 @@ def _local_outcomes(jobs, workers, threads_per_worker, interrupts, note=log.warn
     def next_job():
         return queue.popleft() if queue and not interrupts.requested else None
 
+    def hand_out(worker, job):
+        """Give a ready worker its next job, or tell it to end when there is none."""
+        try:
+            if job is not None:
+                worker.give(job)
+            else:
+                worker.connection.send(None)
+        except OSError:  # died meanwhile: found dead on the next round, holding the job
+            pass
+
     try:
         for _ in range(min(workers, len(queue))):
             start_worker(next_job())
@@ -321,20 +331,12 @@ def _local_outcomes(jobs, workers, threads_per_worker, interrupts, note=log.warn
                     if kind == "ready":
                         worker.ready, start_failures = True, 0
                         job, worker.job = worker.job or next_job(), None
+                        hand_out(worker, job)
                     else:
-                        yield payload
-                        job = next_job()
                         worker.job = None
-                    if job is not None:
-                        try:
-                            worker.give(job)
-                        except OSError:  # died meanwhile: found dead on the next round, holding the job
-                            pass
-                    elif worker.ready:
-                        try:
-                            worker.connection.send(None)  # nothing left for it: let it end
-                        except OSError:
-                            pass
+                        hand_out(worker, next_job())  # the next compound first, then the parent stores this one
+                        payload["attempts"] = 1 + len(deaths.get(payload["name"], ()))
+                        yield payload
                     continue
                 if worker.alive():  # pipe readable but broken while the process is still going
                     worker.process.kill()
@@ -366,12 +368,12 @@ def _local_outcomes(jobs, workers, threads_per_worker, interrupts, note=log.warn
                     start_worker(job)
                     continue
                 cause = f"({how[0]}) twice" if how[0] == how[1] else f"twice ({how[0]}, then {how[1]})"
+                job_left = next_job()
+                if job_left is not None:
+                    start_worker(job_left)
                 yield {"name": job["name"], "status": "failed", "worker": f"{socket.gethostname()}:{worker.process.pid}",
                        "reason": f"worker process died {cause}: a crash inside a calculation library or out of memory",
-                       "wall_time_s": time.perf_counter() - worker.sent_at}
-                job = next_job()
-                if job is not None:
-                    start_worker(job)
+                       "wall_time_s": time.perf_counter() - worker.sent_at, "attempts": len(how)}
         if interrupts.requested:  # outcomes already sent back are kept
             for worker in pool:
                 while worker.job is not None and worker.ready and worker.connection.poll():
@@ -380,6 +382,7 @@ def _local_outcomes(jobs, workers, threads_per_worker, interrupts, note=log.warn
                         break
                     if message[0] == "outcome":
                         worker.job = None
+                        message[1]["attempts"] = 1 + len(deaths.get(message[1]["name"], ()))
                         yield message[1]
     finally:
         _stop_workers(pool, interrupts)
@@ -436,7 +439,8 @@ def store_outcome(store, outcome, session_id, out_dir):
     from .output import write_results
 
     common = dict(session_id=session_id, wall_time_s=outcome.get("wall_time_s"),
-                  peak_memory_mb=outcome.get("peak_memory_mb"), worker=outcome.get("worker"))
+                  peak_memory_mb=outcome.get("peak_memory_mb"), worker=outcome.get("worker"),
+                  attempts=outcome.get("attempts", 1))
     if outcome["status"] != "done":
         store.record_failed(outcome["name"], outcome["reason"], **common)
         return

@@ -328,11 +328,12 @@ class RunStore:
 
     @_guarded
     def record_done(self, name, result, session_id, wall_time_s, peak_memory_mb=None, worker=None,
-                    rescore_failure=""):
+                    rescore_failure="", attempts=1):
         """Store a finished compound (a ScanResult) in one transaction: its result and its profile points.
 
         rescore_failure: why the requested re-scoring is missing ("" when it was not asked for or worked).
-        Times in seconds, memory in MB.
+        attempts: how many tries this took (a worker process that died counts one). Times in seconds,
+        memory in MB.
         """
         text = json.dumps(result.to_dict(), allow_nan=False)
         with self._db:
@@ -344,21 +345,21 @@ class RunStore:
             )
             self._db.execute(
                 "UPDATE compounds SET status = 'done', reason = '', result_json = ?, rescore_failure = ?, "
-                "session_id = ?, attempts = attempts + 1, wall_time_s = ?, peak_memory_mb = ?, worker = ?, "
+                "session_id = ?, attempts = attempts + ?, wall_time_s = ?, peak_memory_mb = ?, worker = ?, "
                 "finished_utc = ? WHERE name = ?",
-                (text, rescore_failure, session_id, wall_time_s, peak_memory_mb, worker, utc_now(), name),
+                (text, rescore_failure, session_id, attempts, wall_time_s, peak_memory_mb, worker, utc_now(), name),
             )
 
     @_guarded
-    def record_failed(self, name, reason, session_id, wall_time_s=None, peak_memory_mb=None, worker=None):
-        """Mark a compound failed with its reason (one transaction)."""
+    def record_failed(self, name, reason, session_id, wall_time_s=None, peak_memory_mb=None, worker=None, attempts=1):
+        """Mark a compound failed with its reason (one transaction); attempts as in record_done."""
         with self._db:
             self._clear_points(name)
             self._db.execute(
                 "UPDATE compounds SET status = 'failed', reason = ?, result_json = NULL, rescore_failure = '', "
-                "session_id = ?, attempts = attempts + 1, wall_time_s = ?, peak_memory_mb = ?, worker = ?, "
+                "session_id = ?, attempts = attempts + ?, wall_time_s = ?, peak_memory_mb = ?, worker = ?, "
                 "finished_utc = ? WHERE name = ?",
-                (reason, session_id, wall_time_s, peak_memory_mb, worker, utc_now(), name),
+                (reason, session_id, attempts, wall_time_s, peak_memory_mb, worker, utc_now(), name),
             )
 
     @_guarded
