@@ -191,3 +191,38 @@ def test_a_list_problem_fixed_without_changing_the_structure_becomes_pending(tmp
         assert store.compound("a")["status"] == "failed"
         store.add_compounds([_entry("a", "C=CC=C")])
         assert (store.compound("a")["status"], store.compound("a")["reason"]) == ("pending", "")
+
+
+def test_a_full_or_read_only_database_raises_storage_error_and_keeps_what_was_committed(tmp_path, model_scan):
+    with RunStore(tmp_path) as store:
+        store.add_compounds([_entry("a", "C=CC=C"), _entry("b", "C=CC=C")])
+        session = store.start_session("t")
+        store.record_done("a", model_scan, session, 1.0)
+        pages = store._db.execute("PRAGMA page_count").fetchone()[0]
+        store._db.execute(f"PRAGMA max_page_count = {pages}")  # SQLite's own "database or disk is full"
+        with pytest.raises(StorageError, match=r"cannot write run.sqlite in .* \(database or disk is full\): free "
+                                               "space, then rerun the same command to continue"):
+            store.record_done("b", model_scan, session, 1.0)
+        store._db.execute("PRAGMA query_only = 1")  # refuses writes as a read-only file does
+        with pytest.raises(StorageError, match=r"cannot write run.sqlite in .* \(attempt to write a readonly "
+                                               r"database\): choose a writable --out or fix its permissions"):
+            store.record_failed("b", "reason", session)
+    with RunStore(tmp_path, create=False) as store:
+        assert store.counts() == {"pending": 1, "done": 1, "failed": 0}
+        assert store.result("a").to_dict() == model_scan.to_dict()
+
+
+def test_a_damaged_database_is_a_storage_error_when_read(tmp_path, model_scan):
+    with RunStore(tmp_path) as store:
+        store.add_compounds([_entry(f"c{n}", "C=CC=C") for n in range(30)])
+        session = store.start_session("t")
+        for n in range(30):
+            store.record_done(f"c{n}", model_scan, session, 1.0)
+        store._db.execute("PRAGMA wal_checkpoint(TRUNCATE)")
+    path = tmp_path / DATABASE_NAME
+    data = bytearray(path.read_bytes())
+    data[8192:len(data) - 4096] = b"\xff" * (len(data) - 4096 - 8192)  # pages after the schema overwritten
+    path.write_bytes(bytes(data))
+    with pytest.raises(StorageError, match="is not a readable run database .*; move it away or choose another --out"):
+        with RunStore(tmp_path, create=False) as store:
+            [store.result(name) for name in store.names("done")]

@@ -127,8 +127,7 @@ def storage_problem(folder, error):
         return StorageError(f"{where} is locked by another process ({error}); wait for it to finish or choose "
                             "another --out")
     if code in (_SQLITE_READONLY, _SQLITE_CANTOPEN, _SQLITE_PERM):
-        return StorageError(f"cannot open {where} for writing ({error}): choose a writable --out or fix its "
-                            "permissions")
+        return StorageError(f"cannot write {where} ({error}): choose a writable --out or fix its permissions")
     return StorageError(f"cannot use {where} ({error}): check the disk and the folder, then rerun the same command")
 
 
