@@ -287,3 +287,72 @@ def test_bad_input_in_a_real_process_has_no_traceback(bad_files, name):
     lines = _error_lines(completed.stderr)
     assert len(lines) == 1 and lines[0].startswith("torsionscan: error: ") and phrase in lines[0], completed.stderr
     assert "Traceback" not in completed.stderr
+
+
+# -- what the checks let through, and user text that reaches the outputs -------------------------------
+
+def test_allow_large_passes_the_size_limit_with_a_time_warning(no_computation, capsys, caplog, monkeypatch):
+    from torsionscan.errors import CalculationError
+
+    def stop(*args, **kwargs):
+        raise CalculationError("stopped before the start structures (test)")
+
+    monkeypatch.setattr(torsionscan.driver, "relax_start", stop)
+    assert main(["scan", LARGE, "--allow-large", "--no-frequencies", "--out", str(no_computation / "large")]) == 3
+    assert "stopped before the start structures" in capsys.readouterr().err
+    assert any(r.getMessage().startswith("310 atoms: expect about") for r in caplog.records)
+
+
+def test_csv_text_cells_that_look_like_formulas_are_written_as_text(bad_files, tmp_path):
+    import csv
+    import dataclasses
+
+    from torsionscan.output.report import compound_rows, table_columns, write_table_csv
+    from torsionscan.output.summary import read_summary_file, spreadsheet_cell, write_profile_table
+
+    formula = '=HYPERLINK("http://x","y")'
+    for text in (formula, "+cmd", "-2+3", "@SUM(A1:A9)", "\t=1"):
+        assert spreadsheet_cell(text) == "'" + text
+    for value in (-1.23, "-1.23", "+4", "-.5e-3", 0, None, True, "plain", "a=b"):
+        assert spreadsheet_cell(value) == value
+
+    result = read_summary_file(bad_files / "result" / "summary.json")
+    record = {"name": formula, "smiles": "C=CC=O", "status": "done", "reason": "", "wall_time_s": -1.23,
+              "extra": {"supplier": "@evil", "charge_note": "-1"}}
+    rows = compound_rows(record, result)
+    columns = table_columns(result.settings.temperatures_k, ["supplier", "=header"])
+    path = tmp_path / "scan_table.csv"
+    with path.open("w", newline="") as handle:
+        write_table_csv(handle, columns, rows)
+    with path.open(newline="") as handle:
+        (header, *body) = list(csv.reader(handle))
+    assert header[-1] == "'=header"
+    cells = dict(zip(header, body[0]))
+    assert cells["name"] == "'" + formula and cells["supplier"] == "'@evil"
+    assert cells["compound_wall_time_s"] == "-1.23"  # a negative number stays a number
+    assert float(cells["global_min_deg"]) == rows[0]["global_min_deg"]
+    assert rows[0]["name"] == formula  # the rows themselves (for the HTML report) keep the text
+
+    bond = result.bonds[0]
+    points = list(bond.points)
+    points[0] = dataclasses.replace(points[0], failure="=1+1 failed")
+    write_profile_table(dataclasses.replace(bond, points=tuple(points)), tmp_path / "profile.csv")
+    with (tmp_path / "profile.csv").open(newline="") as handle:
+        table = list(csv.DictReader(handle))
+    assert table[0]["failure"] == "'=1+1 failed"
+    angles = [float(row["angle_deg"]) for row in table]  # negative angles stay numbers
+    assert min(angles) < 0 and all(float(row["energy_rel_kcal_mol"]) >= 0 for row in table)
+
+
+def test_the_html_report_escapes_a_formula_or_markup_name():
+    import html as html_module
+
+    from torsionscan.output.html import html_report
+
+    name = '=HYPERLINK("http://x","y")<script>alert(1)</script>'
+    rows = [{"name": name, "bond": "2-3", "status": "failed", "reason": "<b>bad</b>"}]
+    page = html_report(title="t", run_info={}, settings={}, caution="c", columns=["name", "bond", "status", "reason"],
+                       rows=rows, plots={})
+    assert "<script>alert(1)</script>" not in page and "<b>bad</b>" not in page
+    assert html_module.escape(name, quote=True) in page
+    assert "'=HYPERLINK" not in page  # the apostrophe is for spreadsheets only

@@ -182,3 +182,21 @@ def _umask():
     current = os.umask(0)
     os.umask(current)
     return current
+
+
+def test_a_molecule_argument_that_is_smiles_and_a_file_is_ambiguous(tmp_path, monkeypatch, capsys):
+    monkeypatch.chdir(tmp_path)
+    (tmp_path / "C=CC=C").write_text("a file named like butadiene's SMILES\n")
+    assert main(["bonds", "C=CC=C"]) == 2
+    err = capsys.readouterr().err
+    assert "ambiguous" in err and "--smiles 'C=CC=C' or --file 'C=CC=C'" in err and len(err.splitlines()) == 1
+    assert main(["bonds", "--smiles", "C=CC=C"]) == 0  # explicit: the file is never looked at
+    assert "[CH2:1]=[CH:2][CH:3]=[CH2:4]: 1 conjugated single bond(s)" in capsys.readouterr().out
+    assert main(["bonds", "--file", "C=CC=C"]) == 2  # explicit: read as a file, which has no known type
+    assert "unknown file type" in capsys.readouterr().err
+    # unambiguous positionals keep working: a SMILES with no such file, a file that is no SMILES
+    assert main(["bonds", "C=CC=O"]) == 0
+    Chem.MolToMolFile(Chem.AddHs(Chem.MolFromSmiles("C=CC=O")), str(tmp_path / "acrolein.mol"))
+    assert main(["bonds", "acrolein.mol"]) == 0
+    assert main(["bonds", "--file", "acrolein.mol"]) == 0
+    assert capsys.readouterr().out.count("1 conjugated single bond(s)") == 3

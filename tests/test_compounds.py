@@ -223,3 +223,104 @@ def test_entry_input_changes_with_the_charge():
     }
     charged = CompoundEntry(name="a", where="line 2", smiles="C=CC=O", bond="2-3", charge=1)
     assert entry_input(charged) != entry_input(entry)
+
+
+# -- SMILES cells are only SMILES; structures from files come through structure_file ----------------
+
+def _acrolein_files(folder):
+    """acrolein.sdf (3D, hydrogens) and acrolein.xyz in folder; returns the RDKit molecule."""
+    mol = Chem.AddHs(Chem.MolFromSmiles("C=CC=O"))
+    AllChem.EmbedMolecule(mol, randomSeed=11)
+    mol.SetProp("_Name", "acrolein")
+    folder.mkdir(parents=True, exist_ok=True)
+    Chem.MolToMolFile(mol, str(folder / "acrolein.sdf"))
+    (folder / "acrolein.xyz").write_text(Chem.MolToXYZBlock(mol))
+    return mol
+
+
+def test_structure_file_column_reads_files_beside_the_list(tmp_path):
+    mol = _acrolein_files(tmp_path / "structures")
+    path = _write(tmp_path, "list.csv", "name,smiles,structure_file,charge\n"
+                                        "from-sdf,,structures/acrolein.sdf,\n"
+                                        f"from-xyz,,{tmp_path / 'structures' / 'acrolein.xyz'},0\n"
+                                        "from-smiles,C=CC=C,,\n")
+    sdf, xyz, smiles = read_compound_list(path)
+    for entry in (sdf, xyz):
+        assert entry.problem == "" and entry.smiles == "C=CC=O" and entry.molblock
+        read_back = Chem.MolFromMolBlock(entry.molblock, removeHs=False)
+        assert read_back.GetNumAtoms() == mol.GetNumAtoms()  # hydrogens kept, coordinates from the file
+        assert abs(read_back.GetConformer().GetPositions() - mol.GetConformer().GetPositions()).max() < 1e-3
+    assert "structure_file" not in sdf.extra
+    assert smiles.molblock == "" and smiles.smiles == "C=CC=C" and smiles.problem == ""
+
+
+def test_structure_file_outside_the_list_folder_is_refused_unless_allowed(tmp_path):
+    from torsionscan.compounds import list_policy
+
+    _acrolein_files(tmp_path)
+    folder = tmp_path / "lists"
+    folder.mkdir()
+    (folder / "link.sdf").symlink_to(tmp_path / "acrolein.sdf")  # inside by name, outside in fact
+    path = _write(folder, "list.csv", "name,structure_file\nup,../acrolein.sdf\n"
+                                      f"absolute,{tmp_path / 'acrolein.sdf'}\nlinked,link.sdf\n")
+    for entry in read_compound_list(path):
+        assert "outside the list's folder" in entry.problem and "--allow-outside-files" in entry.problem
+        assert entry.molblock == ""
+    assert all(not e.problem and e.molblock for e in read_compound_list(path, allow_outside_files=True))
+    with list_policy(allow_outside_files=True):
+        assert all(not e.problem for e in read_compound_list(path))
+        assert all(e.problem for e in read_compound_list(path, allow_outside_files=False))
+    assert all(e.problem for e in read_compound_list(path))  # the permission ends with the block
+
+
+def test_smiles_cells_are_never_read_as_files(tmp_path):
+    _acrolein_files(tmp_path)
+    (tmp_path / "CCO").write_text("a file named like a SMILES\n")
+    path = _write(tmp_path, "list.csv", "name,smiles\nsdf,acrolein.sdf\npasswd,/etc/passwd\nethanol,CCO\n")
+    sdf, passwd, ethanol = read_compound_list(path)
+    for entry, text in ((sdf, "acrolein.sdf"), (passwd, "/etc/passwd")):
+        assert entry.problem.startswith(f"could not read {text!r} as SMILES on line ")
+        assert "structure_file column" in entry.problem and entry.molblock == ""
+    assert ethanol.problem == "" and ethanol.molblock == "" and ethanol.smiles == "CCO"
+    smi = _write(tmp_path, "list.smi", "acrolein.sdf first\nC=CC=O second\n")
+    first, second = read_compound_list(smi)
+    assert "as SMILES" in first.problem and second.problem == ""
+
+
+def test_structure_file_row_problems(tmp_path):
+    _acrolein_files(tmp_path)
+    (tmp_path / "empty.sdf").write_text("")
+    path = _write(tmp_path, "list.csv", "name,smiles,structure_file\nboth,C=CC=O,acrolein.sdf\n"
+                                        "missing,,nowhere.sdf\nempty,,empty.sdf\nneither,,\n")
+    both, missing, empty, neither = read_compound_list(path)
+    assert both.problem == "line 2 gives both a SMILES and a structure_file; give one of them"
+    assert "structure_file 'nowhere.sdf' on line 3: file not found" in missing.problem
+    assert "structure_file 'empty.sdf' on line 4" in empty.problem and "is empty" in empty.problem
+    assert neither.problem == "no SMILES on line 5 (nor a structure_file)"
+
+
+def test_molecules_above_the_size_limit_are_refused_unless_allowed(tmp_path):
+    path = _write(tmp_path, "list.csv", "name,smiles\nlarge,C=CC=C" + "C" * 100 + "\nsmall,C=CC=O\n")
+    large, small = read_compound_list(path)
+    assert "310 atoms" in large.problem and "300-atom limit" in large.problem and small.problem == ""
+    assert not read_compound_list(path, allow_large=True)[0].problem
+
+
+def test_unreadable_and_binary_lists_are_refused(tmp_path, monkeypatch):
+    from pathlib import Path
+
+    binary = tmp_path / "binary.sdf"
+    binary.write_bytes(bytes(range(256)))
+    with pytest.raises(InputError, match="binary file"):
+        read_compound_list(binary)
+    locked = _write(tmp_path, "locked.csv", "name,smiles\na,C=CC=O\n")
+    real = Path.read_bytes
+
+    def read_bytes(self):
+        if self.name == "locked.csv":
+            raise PermissionError(13, "Permission denied")
+        return real(self)
+
+    monkeypatch.setattr(Path, "read_bytes", read_bytes)
+    with pytest.raises(InputError, match=r"cannot be read \(Permission denied\); check its permissions"):
+        read_compound_list(locked)

@@ -214,3 +214,36 @@ def test_an_rdkit_molecule_is_accepted_with_its_coordinates_and_title():
     assert molecule.name == "acrolein_from_a_record"
     assert molecule.smiles == "C=CC=O"
     np.testing.assert_allclose(molecule.input_coords_angstrom, mol.GetConformer().GetPositions())
+
+
+def test_molecule_source_rule(tmp_path, monkeypatch):
+    from pathlib import Path
+
+    from torsionscan.molecule import molecule_source
+
+    monkeypatch.chdir(tmp_path)
+    (tmp_path / "CCO").write_text("x\n")
+    (tmp_path / "mol.sdf").write_text("x\n")
+    assert molecule_source("C=CC=O") == "C=CC=O"
+    assert molecule_source("mol.sdf") == Path("mol.sdf") and molecule_source("missing.xyz") == Path("missing.xyz")
+    assert molecule_source(smiles="CCO") == "CCO" and molecule_source(file="CCO") == Path("CCO")
+    for kwargs, words in [({"text": "CCO"}, "ambiguous"), ({"smiles": "C=C(C"}, "as SMILES"),
+                          ({"text": "CCO", "smiles": "CCO"}, "only one of"), ({}, "no molecule given")]:
+        with pytest.raises(InputError, match=words):
+            molecule_source(**kwargs)
+    # from Python a string that parses as SMILES is SMILES even beside a file of that name; a Path is a file
+    assert load_molecule("CCO").smiles == "CCO"
+    with pytest.raises(InputError, match="unknown file type"):
+        load_molecule(Path("CCO"))
+
+
+def test_input_structures_with_coinciding_or_no_atoms_are_refused(tmp_path):
+    (tmp_path / "close.xyz").write_text("2\n\nC 0 0 0\nC 0 0 0.3\n")
+    with pytest.raises(InputError, match=r"atoms 1 \(C\) and 2 \(C\) are only 0.30 Å apart"):
+        load_molecule(tmp_path / "close.xyz")
+    (tmp_path / "none.sdf").write_text("empty\n     RDKit          3D\n\n  0  0  0  0  0  0  0  0  0  0999 V2000\n"
+                                       "M  END\n$$$$\n")
+    with pytest.raises(InputError, match="record 1 holds no atoms"):
+        load_molecule(tmp_path / "none.sdf")
+    with pytest.raises(InputError, match="holds no atoms"):
+        load_molecule(Chem.Mol())

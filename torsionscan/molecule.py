@@ -45,11 +45,13 @@ COINCIDENT_ANGSTROM = 0.01  # two input atoms closer than this are one place giv
 MIN_DISTANCE_ANGSTROM = 0.5  # shorter than any bond (H2: 0.74 A)
 LARGE_ATOMS = 60  # above this a scan gets a warning with its expected time
 MAX_ATOMS = 300  # above this a scan is refused unless forced (--allow-large)
-# measured warm-started GFN2-xTB gradients on one core (xtb-python, alkyl dienes): 0.14 s at 64 atoms,
-# 0.43 s at 124, 0.85 s at 184, about 2.5-3.5e-5 N^2 s
-GRADIENT_S_PER_ATOM2 = 3.0e-5
-SCAN_GRADIENTS = 400  # start structures and a 15-degree scan of one bond, typical
-FREQUENCY_GRADIENTS_PER_ATOM = 24  # 6N per stationary point, about four of them
+# Scan cost, measured on one core (xtb-python, 2-core machine shared): a warm-started GFN2-xTB gradient
+# takes 0.14 s at 64 atoms, 0.43 s at 124, 0.85 s at 184 (about 2.5-3.5e-5 N^2 s); whole 30-degree scans
+# with frequencies of C=CC=C-(CH2)n-H took 84 s at 34 atoms (1279 gradients, 1070 of them frequencies)
+# and 236 s at 64 atoms (1742 gradients, 1557 frequencies: 24-31 N), 0.135 s per gradient at 64 atoms.
+GRADIENT_S_PER_ATOM2 = 3.3e-5
+SCAN_GRADIENTS = 450  # five start structures and a 15-degree scan of one bond
+FREQUENCY_GRADIENTS_PER_ATOM = 27  # 6N per distinct stationary point, four to five of them
 
 
 @dataclass(frozen=True)
@@ -286,7 +288,7 @@ def check_size(count, allow_large=False, frequencies=True):
         )
     if count > LARGE_ATOMS:
         return (f"{count} atoms: expect about {_duration(scan_cost_estimate_s(count, frequencies))} per scanned bond "
-                "on one core (GFN2-xTB cost grows with the square of the atom count)")
+                "on one core" + ("; frequencies are most of it (--no-frequencies skips them)" if frequencies else ""))
     return None
 
 

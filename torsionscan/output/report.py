@@ -9,6 +9,7 @@ Reading the run database and writing the files is torsionscan.runfolder's job. E
 kcal/mol, angles in degrees, wavenumbers cm^-1, times s; values are rounded here, for the table.
 """
 
+import csv
 import math
 
 import matplotlib.pyplot as plt
@@ -16,7 +17,7 @@ import matplotlib.pyplot as plt
 from ..molecule import numbered_smiles
 from ..profile import FIT_TARGET_KCAL_MOL
 from ..units import wrap_deg
-from .summary import populations_disagree
+from .summary import populations_disagree, spreadsheet_cell, spreadsheet_row
 
 _OVERVIEW_ROWS = 40  # bars drawn in the overview; a longer run shows its highest s-cis populations
 _ANGLE_DIGITS, _ENERGY_DIGITS, _BARRIER_DIGITS, _DELTA_G_DIGITS = 3, 5, 4, 4
@@ -249,6 +250,17 @@ def table_columns(temperatures_k, extra_columns):
     columns += ["refined_population_model"]
     columns += ["refined_disagreement_max_kcal_mol", "refined_disagreement_warning", "compound_wall_time_s"]
     return columns + [c for c in extra_columns if c not in columns]
+
+
+def write_table_csv(handle, columns, rows):
+    """Write the results table (rows keyed by columns, extra keys ignored) as CSV to an open text
+    handle; header and text cells pass through spreadsheet_cell, so a compound named "=HYPERLINK(...)"
+    or a list column "@x" is read as text by spreadsheets, while numbers stay numbers."""
+    writer = csv.writer(handle)
+    writer.writerow([spreadsheet_cell(column) for column in columns])
+    for row in rows:
+        safe = spreadsheet_row(row)
+        writer.writerow(["" if safe.get(column) is None else safe.get(column) for column in columns])
 
 
 # columns that split the circle into s-cis and s-trans: empty for a symmetric rotor

@@ -22,6 +22,24 @@ POINT_KEYS = ("angle_deg", "measured_angle_deg", "energy_rel_kcal_mol", "energy_
               "gradient_evaluations", "converged", "mirrored", "central_bond_order", "homo_lumo_gap_ev",
               "failure", "energy_rescored_rel_kcal_mol", "energy_refined_rel_kcal_mol")
 _DIGITS = 5  # decimals of the energies, angles, bond orders and gaps in the table
+# a text cell starting with one of these is a formula to a spreadsheet (tab and carriage return: the same
+# trick behind leading white space)
+FORMULA_STARTS = ("=", "+", "-", "@", "\t", "\r")
+_NUMBER_TEXT = re.compile(r"[+-]?(?:[0-9]+(?:\.[0-9]*)?|\.[0-9]+)(?:[eE][+-]?[0-9]+)?")
+
+
+def spreadsheet_cell(value):
+    """A CSV cell that spreadsheets show as written: text starting with =, +, -, @, a tab or a carriage
+    return gets a leading apostrophe, so it is read as text and never run as a formula. Numbers, and
+    text that is just a number ("-1", "+2.5e3"), stay as they are."""
+    if isinstance(value, str) and value.startswith(FORMULA_STARTS) and not _NUMBER_TEXT.fullmatch(value):
+        return "'" + value
+    return value
+
+
+def spreadsheet_row(row):
+    """A table row (dict) with every text cell made safe by spreadsheet_cell."""
+    return {key: spreadsheet_cell(value) for key, value in row.items()}
 
 
 def populations_disagree(integrated, rrho):
@@ -113,4 +131,4 @@ def write_profile_table(bond, path):
     with Path(path).open("w", newline="") as handle:
         writer = csv.DictWriter(handle, fieldnames=profile_columns(bond))
         writer.writeheader()
-        writer.writerows(profile_rows(bond))
+        writer.writerows(spreadsheet_row(row) for row in profile_rows(bond))
