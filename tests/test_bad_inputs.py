@@ -131,6 +131,7 @@ ROWS = [
     ("fit-summary-old-schema", ["fit", "{d}/old-schema"], 2, "schema version 1"),
     ("fit-summary-damaged", ["fit", "{d}/damaged"], 2, "damaged"),
     ("fit-summary-wrong-types", ["fit", "{d}/wrong-types"], 2, "damaged"),
+    ("fit-summary-wrong-number", ["rescore", "{d}/wrong-number", "--level", "cheap"], 2, "damaged"),
     ("fit-bond-not-scanned", ["fit", "{d}/result", "--bond", "1-2"], 2, "1-2"),
     ("fit-mm-binary", ["fit", "{d}/result", "--mm-energies", "{d}/binary.csv"], 2, "UTF-8"),
     ("fit-mm-missing", ["fit", "{d}/result", "--mm-energies", "{d}/missing.csv"], 2, "missing.csv"),
@@ -215,6 +216,10 @@ def bad_files(tmp_path_factory):
     plain["bonds"] = "none"
     (d / "wrong-types").mkdir()
     (d / "wrong-types" / "summary.json").write_text(json.dumps(plain))
+    plain = json.loads((d / "result" / "summary.json").read_text())
+    plain["settings"]["step_deg"] = [60]  # a list where a number belongs
+    (d / "wrong-number").mkdir()
+    (d / "wrong-number" / "summary.json").write_text(json.dumps(plain))
     return d
 
 

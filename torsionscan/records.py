@@ -460,4 +460,9 @@ class ScanResult:
         if version != SCHEMA_VERSION:
             raise InputError(f"summary schema version {version} is not the one this torsionscan reads "
                              f"({SCHEMA_VERSION}); rerun the scan with this version")
-        return from_plain(cls, {k: v for k, v in data.items() if k != "schema_version"})
+        try:
+            return from_plain(cls, {k: v for k, v in data.items() if k != "schema_version"})
+        except InputError:
+            raise
+        except (TypeError, ValueError, KeyError, IndexError, AttributeError) as error:  # a value of the wrong kind
+            raise InputError(f"the summary is damaged (a value of the wrong kind: {error}); rerun the scan") from None
