@@ -29,7 +29,10 @@ def read_result(folder):
     path = folder / "summary.json"
     if not path.is_file():
         raise InputError(f"{folder} has no summary.json; give the result folder of a scan")
-    return summary.read_summary_file(path)
+    try:
+        return summary.read_summary_file(path)
+    except OSError as error:  # e.g. no read permission
+        raise InputError(f"{path} cannot be read ({error.strerror}); check its permissions") from None
 
 
 def rescore_folder(folder, level_text, threads=None):
