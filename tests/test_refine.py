@@ -8,7 +8,7 @@ import pytest
 
 import torsionscan
 from torsionscan.engines.model import ModelEngine
-from torsionscan.errors import InputError
+from torsionscan.errors import CalculationError, InputError
 from torsionscan.molecule import find_conjugated_bonds, load_molecule
 from torsionscan.profile import FourierSeries
 from torsionscan.refine import refine_result
@@ -31,13 +31,14 @@ def scanned():
     atoms = find_conjugated_bonds(molecule)[0].atoms
     result = torsionscan.scan("C=CC=C", engine=ModelEngine(molecule.mol, [(atoms, SCAN_LEVEL)]),
                               settings=torsionscan.ScanSettings(conformers=1))
-    return result, functools.partial(ModelEngine, molecule.mol, [(atoms, HIGHER_LEVEL)])
+    return result, functools.partial(ModelEngine, molecule.mol, [(atoms, HIGHER_LEVEL)]), ModelEngine(
+        molecule.mol, [(atoms, SCAN_LEVEL)])
 
 
 @pytest.mark.parametrize("processes", [1, 2])
 def test_every_point_refined_gives_the_higher_level_profile(scanned, processes):
-    result, factory = scanned
-    refined = refine_result(result, factory, "second model", processes=processes).bonds[0].refined
+    result, factory, start = scanned
+    refined = refine_result(result, factory, "second model", start_engine=start, processes=processes).bonds[0].refined
     analysis = refined.analysis
     for kind, records in (("minimum", analysis.minima), ("maximum", analysis.maxima)):
         expected = _dense(HIGHER_LEVEL, kind)
@@ -61,8 +62,8 @@ def test_every_point_refined_gives_the_higher_level_profile(scanned, processes):
 
 
 def test_only_stationary_points_refined(scanned):
-    result, factory = scanned
-    refined = refine_result(result, factory, "second model", points_mode="stationary", processes=2).bonds[0].refined
+    result, factory, start = scanned
+    refined = refine_result(result, factory, "second model", start_engine=start, points_mode="stationary", processes=2).bonds[0].refined
     analysis = refined.analysis
     assert analysis.fit is None and analysis.populations == () and refined.points == ()
     minima = sorted(analysis.relative_kcal_mol(m.energy_hartree) for m in analysis.minima)
@@ -74,9 +75,9 @@ def test_only_stationary_points_refined(scanned):
 
 
 def test_an_unknown_point_mode_is_refused(scanned):
-    result, factory = scanned
+    result, factory, start = scanned
     with pytest.raises(InputError, match="--refine-points"):
-        refine_result(result, factory, "x", points_mode="some")
+        refine_result(result, factory, "x", start_engine=start, points_mode="some")
 
 
 def test_a_refined_result_is_written_drawn_and_reported(scanned, tmp_path):
@@ -88,9 +89,9 @@ def test_a_refined_result_is_written_drawn_and_reported(scanned, tmp_path):
     from torsionscan.output.report import bond_row
     from torsionscan.records import ScanResult
 
-    result, factory = scanned
+    result, factory, start = scanned
     for mode in ("all", "stationary"):
-        refined = refine_result(result, factory, "second model", points_mode=mode)
+        refined = refine_result(result, factory, "second model", start_engine=start, points_mode=mode)
         folder = write_results(refined, tmp_path / mode)
         again = ScanResult.from_dict(json.loads((folder / "summary.json").read_text()))
         assert again.to_dict() == refined.to_dict()
@@ -114,11 +115,78 @@ def test_reference_energies_are_added_at_the_refined_stationary_points(scanned, 
         return ReferenceEnergy(float(coords[0, 0]), 0.0, 0.0, (0.0, 0.0), 0.0, 0.0)
 
     monkeypatch.setattr(refine_module, "_reference_job", fake)
-    result, factory = scanned
-    refined = refine_module.add_reference(refine_result(result, factory, "second model", points_mode="stationary"))
+    result, factory, start = scanned
+    refined = refine_module.add_reference(refine_result(result, factory, "second model", start_engine=start, points_mode="stationary"))
     profile = refined.bonds[0].refined
     kinds = sorted(p.kind for p in profile.reference)
     assert kinds == sorted([m.kind for m in profile.analysis.minima + profile.analysis.maxima] + ["planar s-cis"])
     assert profile.reference_label.startswith("focal point")
     with pytest.raises(InputError, match="needs a refined profile"):
         refine_module.add_reference(result)
+
+
+def _without_times(result):
+    plain = result.to_dict()
+    for bond in plain["bonds"]:
+        bond["refined"]["wall_time_s"] = 0.0
+    return plain
+
+
+def test_an_interrupted_refinement_resumes_from_its_checkpoint(scanned, tmp_path):
+    import sqlite3
+
+    from torsionscan.relaxcache import RelaxationCache
+
+    result, factory, start = scanned
+    path = tmp_path / "refinement_points.sqlite"
+    first = refine_result(result, factory, "second model", start_engine=start, cache=RelaxationCache(path))
+    with sqlite3.connect(path) as connection:
+        stored = connection.execute("SELECT count(*) FROM relaxations").fetchone()[0]
+    # 13 grid points of the symmetric half circle plus the off-grid minima and barrier top
+    assert stored >= len(result.bonds[0].relaxed_points)
+    # everything finished is read back: an engine that fails at every angle is never asked
+    molecule = load_molecule("C=CC=C")
+    atoms = find_conjugated_bonds(molecule)[0].atoms
+    broken = functools.partial(ModelEngine, molecule.mol, [(atoms, HIGHER_LEVEL)], fail_near_deg=range(-180, 181))
+    again = refine_result(result, broken, "second model", start_engine=start, cache=RelaxationCache(path))
+    assert _without_times(again) == _without_times(first)
+    # an interruption after some points: the rest is computed, the result is the same
+    with sqlite3.connect(path) as connection:
+        connection.execute("DELETE FROM relaxations WHERE rowid % 2 = 0")
+    resumed = refine_result(result, factory, "second model", start_engine=start, cache=RelaxationCache(path))
+    assert _without_times(resumed) == _without_times(first)
+    # another level never reads these points
+    with pytest.raises(CalculationError, match="converged"):
+        refine_result(result, broken, "third model", start_engine=start, cache=RelaxationCache(path))
+
+
+def test_an_unusable_checkpoint_file_only_costs_the_resume(scanned, tmp_path, caplog):
+    from torsionscan.relaxcache import RelaxationCache
+
+    result, factory, start = scanned
+    path = tmp_path / "refinement_points.sqlite"
+    path.write_bytes(b"not a database" * 100)
+    refined = refine_result(result, factory, "second model", start_engine=start, points_mode="stationary",
+                            cache=RelaxationCache(path))
+    assert refined.bonds[0].refined.analysis.minima
+    assert "refinement checkpoint" in caplog.text
+
+
+def test_mirror_images_share_one_optimisation(scanned, tmp_path):
+    import sqlite3
+
+    from torsionscan.relaxcache import RelaxationCache
+
+    result, factory, start = scanned
+    path = tmp_path / "points.sqlite"
+    refined = refine_result(result, factory, "second model", start_engine=start, points_mode="stationary",
+                            cache=RelaxationCache(path)).bonds[0].refined
+    analysis = refined.analysis
+    with sqlite3.connect(path) as connection:
+        stored = connection.execute("SELECT count(*) FROM relaxations").fetchone()[0]
+    # s-trans, one gauche of the pair, one barrier top of the pair, and 0 deg (top and planar s-cis)
+    assert stored == 4
+    gauche = sorted((m for m in analysis.minima if abs(m.angle_deg) < 90), key=lambda m: m.angle_deg)
+    assert len(gauche) == 2 and gauche[0].energy_hartree == gauche[1].energy_hartree
+    assert gauche[0].angle_deg == pytest.approx(-gauche[1].angle_deg, abs=1e-9)
+    assert analysis.planar_scis.energy_hartree == next(m for m in analysis.maxima if m.angle_deg == 0.0).energy_hartree

@@ -102,8 +102,8 @@ def barriers_between(minima, maxima):
 def analyse_profile(angles_deg, energies_hartree, symmetric, temperatures_k, window_deg, refine=None):
     """The ProfileAnalysis of a profile known at grid points (degrees; absolute Hartree).
 
-    refine(stationary_point, basin) -> StationaryRecord re-optimises one extremum of the fit
-    (basin: the neighbouring extrema of the other kind, degrees); then extrema pairs deeper than
+    refine([(stationary_point, basin), ...]) -> [StationaryRecord, ...] re-optimises the extrema
+    of the fit, all in one call (basin: the neighbouring extrema of the other kind, degrees); extrema pairs deeper than
     FIT_WIGGLE_KCAL_MOL are refined and pairs left flatter than FLAT_KCAL_MOL merged. Without
     refine, extrema deeper than FLAT_KCAL_MOL are taken from the fit, labelled INTERPOLATED.
     The zero of relative energies is the lowest grid point or converged minimum.
@@ -120,11 +120,11 @@ def analyse_profile(angles_deg, energies_hartree, symmetric, temperatures_k, win
         ]
     else:
         fitted = stationary_points(fit.series, min_depth_kcal_mol=FIT_WIGGLE_KCAL_MOL)
-        records = []
+        requests = []
         for s in fitted:
             others = [o.angle_deg for o in fitted if o.kind != s.kind] or [s.angle_deg + 180.0]
-            records.append(refine(s, neighbours(s.angle_deg, others)))
-        records = merge_flat_extrema(records, symmetric, FLAT_KCAL_MOL / HARTREE_KCAL_MOL)
+            requests.append((s, neighbours(s.angle_deg, others)))
+        records = merge_flat_extrema(list(refine(requests)), symmetric, FLAT_KCAL_MOL / HARTREE_KCAL_MOL)
     minima = tuple(r for r in records if r.kind == "minimum")
     maxima = tuple(r for r in records if r.kind == "maximum")
     reference = min([grid_reference, *[m.energy_hartree for m in minima if m.converged]])

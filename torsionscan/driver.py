@@ -25,7 +25,7 @@ from .molecule import (
     find_conjugated_bonds, is_diene_bond, load_molecule, select_bond, side_atoms, starting_structures,
 )
 from .records import BondScan, Hysteresis, ScanPoint, ScanResult, StationaryRecord
-from .relax import Relaxer
+from .relax import Relaxer, RelaxJob
 from .settings import ScanSettings
 from .units import ANGSTROM_BOHR, HARTREE_KCAL_MOL, wrap_deg
 
@@ -62,10 +62,14 @@ def _failed_point(target_deg, coords, evaluations, reason):
 class BondScanner:
     """Carries the state of one bond's scan (visits with their Hessians) between its stages."""
 
-    def __init__(self, molecule, bond, relaxer, settings):
+    def __init__(self, molecule, bond, relaxer, settings, relax_many=None):
+        """relax_many(jobs) -> results runs the refinement's independent relaxations (jobs:
+        RelaxJob; results: OptimizationResult or the CalculationError, in order); default: one
+        after the other with `relaxer`."""
         self.bond = bond
         self.relaxer = relaxer
         self.settings = settings
+        self.relax_many = relax_many or self._relax_in_turn
         self.coordinate = ScanCoordinate(
             dihedrals=(bond.atoms,), moving=(tuple(int(a) for a in side_atoms(molecule, *bond.atoms[1:3])),),
             step_deg=settings.step_deg, mirror_symmetric=not molecule.has_stereocentres,
@@ -84,10 +88,15 @@ class BondScanner:
             coords_bohr=coords,
         )
 
+    def held_job(self, coords, hessian, angles_deg, convergence):
+        """The RelaxJob of a structure turned to the angles and held there."""
+        turned, turned_hessian = self.coordinate.turn(coords, hessian, angles_deg)
+        return RelaxJob(turned, convergence, turned_hessian, tuple(self.coordinate.constraints(angles_deg)))
+
     def relax_at(self, coords, hessian, angles_deg, convergence):
         """Turn a structure to the angles and relax it there; the optimisation result."""
-        turned, turned_hessian = self.coordinate.turn(coords, hessian, angles_deg)
-        return self.relaxer.relax(turned, convergence, turned_hessian, self.coordinate.constraints(angles_deg))
+        job = self.held_job(coords, hessian, angles_deg, convergence)
+        return self.relaxer.relax(job.coords_bohr, job.convergence, job.hessian, job.constraints)
 
     def _visit(self, index, coords, hessian):
         angle = float(wrap_deg(self.coordinate.angles_deg(index)[0]))
@@ -154,7 +163,7 @@ class BondScanner:
         profile = analyse_profile(
             [p.angle_deg for p in good], [p.energy_hartree for p in good], self.symmetric,
             self.settings.temperatures_k, self.settings.scis_window_deg,
-            refine=lambda stationary, basin: self.refine(circle, stationary, basin),
+            refine=lambda requests: self.refine(circle, requests),
         )
         points = tuple(sorted((replace(p, angle_deg=display_angle(p.angle_deg)) for p, _ in circle),
                               key=lambda p: p.angle_deg))
@@ -169,42 +178,75 @@ class BondScanner:
         usable = [item for item in circle if np.isfinite(item[0].energy_hartree)]
         return min(usable, key=lambda item: abs(wrap_deg(item[0].angle_deg - angle_deg)))
 
-    def refine(self, circle, stationary, basin):
-        """Refine one fitted stationary point: minima by free optimisation, maxima constrained; a
-        failed refinement falls back to the nearest grid point, flagged."""
-        try:
-            return self._refine(circle, stationary, basin)
-        except CalculationError as error:
-            point, _ = self.nearest(circle, stationary.angle_deg)
-            return StationaryRecord(
-                stationary.kind, point.angle_deg, stationary.angle_deg, point.energy_hartree,
-                f"refinement failed ({error}); nearest grid point used", False, point.coords_bohr,
-            )
+    def _relax_in_turn(self, jobs):
+        results = []
+        for job in jobs:
+            try:
+                results.append(self.relaxer.relax(job.coords_bohr, job.convergence, job.hessian, job.constraints))
+            except CalculationError as error:
+                results.append(error)
+        return results
 
-    def _refine(self, circle, stationary, basin):
-        fit_angle = stationary.angle_deg
-        if self.symmetric and fit_angle < -1e-9:
-            mirrored = self._refine(circle, replace(stationary, angle_deg=-fit_angle), (-basin[1], -basin[0]))
-            return replace(
-                mirrored, angle_deg=display_angle(-mirrored.angle_deg), fit_angle_deg=fit_angle,
-                coords_bohr=mirror(mirrored.coords_bohr),
-            )
-        point, hessian = self.nearest(circle, fit_angle)
+    def refine(self, circle, requests):
+        """Records of fitted stationary points, requests: (stationary, basin) pairs. Minima by free
+        optimisation (constrained at the fitted angle if that leaves the basin), maxima constrained;
+        on a symmetric profile a point at a negative angle is the mirror image of its partner, so
+        each pair costs one optimisation. All relaxations of a stage go to relax_many together. A
+        failed refinement falls back to the nearest grid point, flagged."""
+        unique = {}
+        for stationary, basin in requests:
+            if self.symmetric and stationary.angle_deg < -1e-9:
+                stationary, basin = replace(stationary, angle_deg=-stationary.angle_deg), (-basin[1], -basin[0])
+            unique.setdefault((stationary.kind, round(stationary.angle_deg, 9)), (stationary, basin))
+        refined = self._refine_unique(circle, list(unique.values()))
+        records = []
+        for stationary, _ in requests:
+            fit_angle = stationary.angle_deg
+            if self.symmetric and fit_angle < -1e-9:
+                image = refined[(stationary.kind, round(-fit_angle, 9))]
+                records.append(replace(image, angle_deg=display_angle(-image.angle_deg), fit_angle_deg=fit_angle,
+                                       coords_bohr=None if image.coords_bohr is None else mirror(image.coords_bohr)))
+            else:
+                records.append(refined[(stationary.kind, round(fit_angle, 9))])
+        return records
+
+    def _refine_unique(self, circle, items):
+        """{(kind, fit angle): StationaryRecord} of distinct (stationary, basin) items, in two stages
+        of relaxations: free minima and held maxima, then held minima that left their basin."""
         convergence = self.settings.refine_convergence
-        if stationary.kind == "minimum":
-            result = self.relaxer.relax(point.coords_bohr, convergence, hessian)
-            if in_arc(self.coordinate.measure_deg(result.x)[0], *basin):
-                return self._stationary(result, "minimum", fit_angle, "free optimisation")
-            how = "constrained at the fitted angle (free optimisation left the basin)"
-        else:
-            if abs(wrap_deg(point.angle_deg - fit_angle)) < 0.05 and point.converged:
-                return StationaryRecord(
-                    "maximum", display_angle(point.measured_angle_deg), fit_angle, point.energy_hartree,
-                    "grid point", point.converged, point.coords_bohr,
-                )
-            how = "constrained at the fitted angle"
-        result = self.relax_at(point.coords_bohr, hessian, (fit_angle,), convergence)
-        return self._stationary(result, stationary.kind, fit_angle, how)
+        done, first, second = {}, [], []
+        for stationary, basin in items:
+            key = (stationary.kind, round(stationary.angle_deg, 9))
+            point, hessian = self.nearest(circle, stationary.angle_deg)
+            if stationary.kind == "minimum":
+                first.append((key, stationary, basin, RelaxJob(point.coords_bohr, convergence, hessian, ())))
+            elif abs(wrap_deg(point.angle_deg - stationary.angle_deg)) < 0.05 and point.converged:
+                done[key] = StationaryRecord("maximum", display_angle(point.measured_angle_deg), stationary.angle_deg,
+                                             point.energy_hartree, "grid point", point.converged, point.coords_bohr)
+            else:
+                first.append((key, stationary, basin, self.held_job(point.coords_bohr, hessian, (stationary.angle_deg,), convergence)))
+        for (key, stationary, basin, _), result in zip(first, self.relax_many([item[3] for item in first])):
+            if isinstance(result, CalculationError):
+                done[key] = self._fallback(circle, stationary, result)
+            elif stationary.kind == "maximum":
+                done[key] = self._stationary(result, "maximum", stationary.angle_deg, "constrained at the fitted angle")
+            elif in_arc(self.coordinate.measure_deg(result.x)[0], *basin):
+                done[key] = self._stationary(result, "minimum", stationary.angle_deg, "free optimisation")
+            else:
+                point, hessian = self.nearest(circle, stationary.angle_deg)
+                second.append((key, stationary, self.held_job(point.coords_bohr, hessian, (stationary.angle_deg,), convergence)))
+        for (key, stationary, _), result in zip(second, self.relax_many([item[2] for item in second])):
+            done[key] = (self._fallback(circle, stationary, result) if isinstance(result, CalculationError) else
+                         self._stationary(result, "minimum", stationary.angle_deg,
+                                          "constrained at the fitted angle (free optimisation left the basin)"))
+        return done
+
+    def _fallback(self, circle, stationary, error):
+        point, _ = self.nearest(circle, stationary.angle_deg)
+        return StationaryRecord(
+            stationary.kind, point.angle_deg, stationary.angle_deg, point.energy_hartree,
+            f"refinement failed ({error}); nearest grid point used", False, point.coords_bohr,
+        )
 
     def _stationary(self, result, kind, fit_angle, how):
         coords = result.x.reshape(-1, 3)

@@ -8,10 +8,12 @@ level, flat pairs merged, barriers, populations). points "stationary": only the 
 (free optimisation), barrier tops (held at the scan's angle) and, for dienes, the planar s-cis
 structure (held at 0 deg); no profile is fitted.
 
-Every optimisation starts from the scan's relaxed structure and Lindh's model Hessian (the
-scan's final quasi-Newton Hessians are not kept in the records). Independent optimisations run
-in parallel processes when `processes` > 1; each process builds its own engine from the
-picklable `engine_factory`. Free energies carry the scan's thermal corrections over
+Every optimisation starts from the scan's relaxed structure and the scan level's own
+finite-difference Hessian there (start_hessians; cheap beside one DFT gradient). On a symmetric
+profile each mirror pair is optimised once. Independent optimisations run in parallel processes
+when `processes` > 1, each process building its own engine from the picklable `engine_factory`;
+finished ones go to an optional checkpoint cache (relaxcache), so an interrupted refinement
+resumes where it stopped. Free energies carry the scan's thermal corrections over
 (THERMAL_NOTE): a Hessian at a DFT level costs 6N gradients per stationary point.
 """
 
@@ -24,16 +26,18 @@ from dataclasses import replace
 import numpy as np
 
 from .analysis import barriers_between, display_angle
-from .coordinate import DihedralConstraint
+from .coordinate import DihedralConstraint, mirror
 from .driver import BondScanner
+from .engines import make_engine
 from .errors import CalculationError, InputError
-from .freeenergy import readiness, rotor_and_rates, rrho_populations
+from .freeenergy import finite_difference_hessian, readiness, rotor_and_rates, rrho_populations
 from .geometry import dihedral
 from .molecule import Molecule, TorsionBond, is_diene_bond
 from .records import ProfileAnalysis, ReferencePoint, RefinedProfile, ScanPoint, StationaryRecord
 from .reference import LABEL as REFERENCE_LABEL
 from .reference import check_reference, focal_point_energy
-from .relax import Relaxer
+from .relax import Relaxer, RelaxJob
+from .relaxcache import relaxation_key
 from .rescore import disagreement
 from .units import wrap_deg
 
@@ -42,26 +46,64 @@ THERMAL_NOTE = ("thermal corrections (G - E) and frequencies of the scan's stati
                 "nearest in angle, carried over: no Hessian is computed at the refined level")
 
 
-def _optimise(job):
-    """One optimisation at the refined level (in this or a worker process): a plain-data outcome."""
-    engine_factory, numbers, coords, angle_deg, atoms, convergence = job
+def _relax(task):
+    """One relaxation at the refined level (in this or a worker process): the OptimizationResult,
+    or the CalculationError with the gradients it used as `evaluations`."""
+    engine_factory, numbers, job = task
     engine = engine_factory()
-    constraints = [] if angle_deg is None else [DihedralConstraint(atoms, math.radians(angle_deg))]
     try:
-        result = Relaxer(engine, numbers).relax(coords, convergence, None, constraints)
+        return Relaxer(engine, numbers).relax(job.coords_bohr, job.convergence, job.hessian, job.constraints)
     except CalculationError as error:
-        return {"failure": str(error), "evaluations": engine.evaluations}
-    return {"coords": result.x.reshape(-1, 3), "energy": result.energy, "converged": result.converged,
-            "evaluations": result.evaluations, "max_gradient": result.max_gradient, "hessian": result.hessian}
+        error.evaluations = engine.evaluations
+        return error
 
 
-def _optimise_all(jobs, processes):
-    """Outcomes of the jobs, in order; in parallel spawned processes when processes > 1."""
-    if processes <= 1 or len(jobs) <= 1:
-        return [_optimise(job) for job in jobs]
-    with ProcessPoolExecutor(max_workers=min(processes, len(jobs)),
-                             mp_context=multiprocessing.get_context("spawn")) as pool:
-        return list(pool.map(_optimise, jobs))
+class Relaxations:
+    """relax_many for a refinement (see driver.BondScanner): finished relaxations read from the
+    checkpoint cache, the others run in parallel spawned processes (each building its own engine
+    from the picklable engine_factory) and stored as they finish. Use as a context manager."""
+
+    def __init__(self, engine_factory, numbers, level_label, processes=1, cache=None, start_tag=""):
+        self.engine_factory, self.numbers, self.level = engine_factory, numbers, level_label
+        self.processes, self.cache, self.start_tag = processes, cache, start_tag
+        self.evaluations = 0  # gradients of every relaxation returned, read from the cache or not
+        self._pool = None
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *exc):
+        if self._pool is not None:
+            self._pool.shutdown(wait=True, cancel_futures=True)
+        return False
+
+    def _run(self, jobs):
+        tasks = [(self.engine_factory, self.numbers, job) for job in jobs]
+        if self.processes <= 1 or len(tasks) <= 1:
+            yield from map(_relax, tasks)
+            return
+        if self._pool is None:
+            self._pool = ProcessPoolExecutor(max_workers=self.processes,
+                                             mp_context=multiprocessing.get_context("spawn"))
+        yield from self._pool.map(_relax, tasks)
+
+    def __call__(self, jobs):
+        keys = [relaxation_key(self.level, self.numbers, job, self.start_tag) for job in jobs]
+        results = [self.cache.get(key) if self.cache else None for key in keys]
+        todo = [n for n, result in enumerate(results) if result is None]
+        for n, result in zip(todo, self._run([jobs[n] for n in todo])):
+            results[n] = result
+            if self.cache and not isinstance(result, CalculationError):
+                self.cache.put(keys[n], self.level, result)
+        self.evaluations += sum(getattr(r, "evaluations", 0) for r in results)
+        return results
+
+
+def start_hessians(engine, coords_list):
+    """Finite-difference Hessians (Hartree/Bohr^2) of engine at each structure (N, 3) Bohr: the
+    scan level's curvature starts each refinement (measured on butadiene at the standard preset:
+    3 DFT gradients per grid point against 3-6 from the model Hessian)."""
+    return [finite_difference_hessian(lambda c: engine.energy_and_gradient(c)[1], coords) for coords in coords_list]
 
 
 def _carried_over(records, scanned):
@@ -99,33 +141,33 @@ def _planar_record(energy, coords, converged, how):
     return StationaryRecord("planar s-cis", 0.0, 0.0, energy, how, converged, coords)
 
 
-def _refine_all(result, bond, engine_factory, processes):
-    """(points, analysis, disagreement, evaluations) with every computed grid point re-optimised."""
-    settings, numbers = result.settings, np.array([a.GetAtomicNum() for a in result.mol.GetAtoms()])
+def _refine_all(result, bond, relaxations, start_engine):
+    """(points, analysis, disagreement) with every computed grid point re-optimised."""
+    settings, numbers = result.settings, relaxations.numbers
     sources = bond.relaxed_points
-    jobs = [(engine_factory, numbers, p.coords_bohr, p.angle_deg, bond.dihedral_atoms, settings.point_convergence)
-            for p in sources]
-    outcomes = _optimise_all(jobs, processes)
-    engine = engine_factory()
     molecule = Molecule(result.name, result.mol, result.charge, result.unpaired_electrons)
-    scanner = BondScanner(molecule, TorsionBond(bond.dihedral_atoms, bond.conjugated), Relaxer(engine, numbers),
-                          settings)
+    scanner = BondScanner(molecule, TorsionBond(bond.dihedral_atoms, bond.conjugated),
+                          Relaxer(relaxations.engine_factory(), numbers), settings, relaxations)
+    hessians = start_hessians(start_engine, [p.coords_bohr for p in sources])
+    jobs = [RelaxJob(p.coords_bohr, settings.point_convergence, h,
+                     (DihedralConstraint(bond.dihedral_atoms, math.radians(p.angle_deg)),))
+            for p, h in zip(sources, hessians)]
     energies = []
-    for source, outcome in zip(sources, outcomes):
+    for source, outcome in zip(sources, relaxations(jobs)):
         index = (int(round(source.angle_deg / settings.step_deg)),)
-        if "failure" in outcome:
+        if isinstance(outcome, CalculationError):
             point = replace(source, measured_angle_deg=math.nan, energy_hartree=math.nan, converged=False,
-                            gradient_evaluations=outcome["evaluations"], max_gradient=math.nan,
-                            failure=outcome["failure"], central_bond_order=math.nan, homo_lumo_gap_ev=math.nan)
+                            gradient_evaluations=getattr(outcome, "evaluations", 0), max_gradient=math.nan,
+                            failure=str(outcome), central_bond_order=math.nan, homo_lumo_gap_ev=math.nan)
             hessian = np.eye(3 * len(numbers))
         else:
+            coords = outcome.x.reshape(-1, 3)
             point = ScanPoint(
-                angle_deg=source.angle_deg, measured_angle_deg=scanner.coordinate.measure_deg(outcome["coords"])[0],
-                energy_hartree=outcome["energy"], converged=outcome["converged"],
-                gradient_evaluations=outcome["evaluations"], max_gradient=outcome["max_gradient"],
-                coords_bohr=outcome["coords"],
+                angle_deg=source.angle_deg, measured_angle_deg=scanner.coordinate.measure_deg(coords)[0],
+                energy_hartree=outcome.energy, converged=outcome.converged, gradient_evaluations=outcome.evaluations,
+                max_gradient=outcome.max_gradient, coords_bohr=coords,
             )
-            hessian = outcome["hessian"]
+            hessian = outcome.hessian
         energies.append(point.energy_hartree)
         scanner.record_visit(index, point, hessian)
     circle, points, analysis, _ = scanner.analyse()
@@ -138,14 +180,13 @@ def _refine_all(result, bond, engine_factory, processes):
     analysis = _with_free_energies(analysis, bond.profile, planar, settings.temperatures_k)
     analysis = rotor_and_rates(analysis, result.mol, bond.dihedral_atoms, settings.temperatures_k,
                                settings.scis_window_deg)
-    verdict = disagreement(bond, analysis, tuple(energies), result.method)
-    evaluations = sum(o["evaluations"] for o in outcomes) + engine.evaluations
-    return points, analysis, verdict, evaluations
+    return points, analysis, disagreement(bond, analysis, tuple(energies), result.method)
 
 
-def _refine_stationary(result, bond, engine_factory, processes):
-    """(analysis, evaluations) with only the scan's stationary points (and planar s-cis) re-optimised."""
-    settings, numbers = result.settings, np.array([a.GetAtomicNum() for a in result.mol.GetAtoms()])
+def _stationary_targets(result, bond):
+    """(record, held angle or None, how) of the scan's minima, barrier tops and (dienes) planar
+    s-cis; on a symmetric profile only one of each mirror pair, with its image's record after it
+    as (record, "mirror", None)."""
     scanned = bond.profile
     targets = [(m, None, "free optimisation") for m in scanned.minima]
     targets += [(m, m.angle_deg, "held at the scan's angle") for m in scanned.maxima]
@@ -155,20 +196,51 @@ def _refine_stationary(result, bond, engine_factory, processes):
     missing = [t[0].kind for t in targets if t[0].coords_bohr is None]
     if missing:
         raise InputError(f"bond {bond.label}: the scan has no structure for its {missing[0]}; rerun the scan")
-    jobs = [(engine_factory, numbers, record.coords_bohr, angle, bond.dihedral_atoms, settings.refine_convergence)
-            for record, angle, _ in targets]
-    outcomes = _optimise_all(jobs, processes)
-    coordinate_atoms = bond.dihedral_atoms
+    return targets
+
+
+def _job_key(kind, angle, held, symmetric):
+    """Which target a stationary record shares its optimisation with: a mirror image, or the
+    planar s-cis structure and a barrier top both held at 0 deg."""
+    if held is not None and abs(wrap_deg(held)) < 1e-6:
+        return ("held", 0.0)
+    angle = abs(angle) if symmetric else angle
+    return ("held", round(angle, 6)) if held is not None else ("free", kind, round(angle, 6))
+
+
+def _refine_stationary(result, bond, relaxations, start_engine):
+    """The analysis with only the scan's stationary points (and planar s-cis) re-optimised; on a
+    symmetric profile each mirror pair costs one optimisation."""
+    settings = result.settings
+    targets = _stationary_targets(result, bond)
+    distinct = {}
+    for record, held, _ in targets:
+        key = _job_key(record.kind, record.angle_deg, held, bond.symmetric)
+        if key not in distinct or (record.angle_deg >= 0 and distinct[key][0].angle_deg < 0):
+            distinct[key] = (record, held)
+    keys = list(distinct)
+    hessians = start_hessians(start_engine, [distinct[k][0].coords_bohr for k in keys])
+    jobs = []
+    for key, hessian in zip(keys, hessians):
+        record, held = distinct[key]
+        held_at = () if held is None else (DihedralConstraint(bond.dihedral_atoms, math.radians(held)),)
+        jobs.append(RelaxJob(record.coords_bohr, settings.refine_convergence, hessian, held_at))
+    outcomes = dict(zip(keys, relaxations(jobs)))
     records, planar = [], None
-    for (record, _, how), outcome in zip(targets, outcomes):
-        if "failure" in outcome:
+    for record, held, how in targets:
+        key = _job_key(record.kind, record.angle_deg, held, bond.symmetric)
+        outcome, source = outcomes[key], distinct[key][0]
+        if isinstance(outcome, CalculationError):
             refined = replace(record, energy_hartree=math.nan, converged=False,
-                              refinement=f"refinement failed ({outcome['failure']})", frequencies_cm1=(),
+                              refinement=f"refinement failed ({outcome})", frequencies_cm1=(),
                               imaginary_count=None, imaginary_along_torsion=None, gibbs_corrections_kcal_mol=())
         else:
-            angle = display_angle(math.degrees(dihedral(outcome["coords"], *coordinate_atoms)))
-            refined = StationaryRecord(record.kind, angle, record.fit_angle_deg, outcome["energy"], how,
-                                       outcome["converged"], outcome["coords"])
+            coords = outcome.x.reshape(-1, 3)
+            if bond.symmetric and (record.angle_deg < 0) != (source.angle_deg < 0) and abs(record.angle_deg) > 1e-6:
+                coords, how = mirror(coords), f"{how} (mirror image)"
+            angle = display_angle(math.degrees(dihedral(coords, *bond.dihedral_atoms)))
+            refined = StationaryRecord(record.kind, angle, record.fit_angle_deg, outcome.energy, how,
+                                       outcome.converged, coords)
         if record.kind == "planar s-cis":
             planar = refined
         else:
@@ -180,27 +252,41 @@ def _refine_stationary(result, bond, engine_factory, processes):
         raise CalculationError(f"bond {bond.label}: no minimum could be refined")
     analysis = ProfileAnalysis(reference_energy_hartree=min(usable), fit=None, minima=minima, maxima=maxima,
                                barriers=tuple(barriers_between(list(minima), list(maxima))), populations=())
-    analysis = _with_free_energies(analysis, scanned, planar, settings.temperatures_k)
-    return analysis, sum(o["evaluations"] for o in outcomes)
+    return _with_free_energies(analysis, bond.profile, planar, settings.temperatures_k)
 
 
-def refine_result(result, engine_factory, level_label, level_reference="", points_mode="all", processes=1):
+def scan_level_engine(result):
+    """A fresh engine of the scan's own method for result's molecule (gas phase)."""
+    numbers = [a.GetAtomicNum() for a in result.mol.GetAtoms()]
+    return make_engine(numbers, charge=result.charge, unpaired_electrons=result.unpaired_electrons,
+                       method=result.settings.method, backend=result.settings.engine)
+
+
+def refine_result(result, engine_factory, level_label, level_reference="", points_mode="all", processes=1,
+                  start_engine=None, cache=None):
     """The ScanResult with every bond's `refined` profile at the level engine_factory() computes.
 
     engine_factory: picklable callable returning a fresh engine for this molecule (e.g.
-    functools.partial of a DFT engine class); processes: parallel optimisations.
+    functools.partial of a DFT engine class); processes: parallel optimisations; start_engine:
+    the engine whose finite-difference Hessian starts each optimisation (default: the scan's
+    own method, scan_level_engine); cache: a relaxcache.RelaxationCache that makes an
+    interrupted refinement resume.
     """
     if points_mode not in POINT_MODES:
         raise InputError(f"--refine-points {points_mode!r}: choose {' or '.join(POINT_MODES)}")
+    start_engine = start_engine or scan_level_engine(result)
+    numbers = np.array([a.GetAtomicNum() for a in result.mol.GetAtoms()])
     bonds = []
     for bond in result.bonds:
         started = time.perf_counter()
-        if points_mode == "all":
-            points, analysis, verdict, evaluations = _refine_all(result, bond, engine_factory, processes)
-        else:
-            (analysis, evaluations), points, verdict = _refine_stationary(result, bond, engine_factory, processes), (), None
-        refined = RefinedProfile(level_label, level_reference, points_mode, points, analysis, verdict, evaluations,
-                                 time.perf_counter() - started, THERMAL_NOTE)
+        with Relaxations(engine_factory, numbers, level_label, processes, cache,
+                         f"start Hessian: {start_engine.method} finite differences") as relaxations:
+            if points_mode == "all":
+                points, analysis, verdict = _refine_all(result, bond, relaxations, start_engine)
+            else:
+                points, analysis, verdict = (), _refine_stationary(result, bond, relaxations, start_engine), None
+        refined = RefinedProfile(level_label, level_reference, points_mode, points, analysis, verdict,
+                                 relaxations.evaluations, time.perf_counter() - started, THERMAL_NOTE)
         bonds.append(replace(bond, refined=refined))
     return replace(result, bonds=tuple(bonds))
 

@@ -2,6 +2,7 @@
 which knows only vectors, and the chemistry (engine, rigid-body invariance, model Hessian)."""
 
 import time
+from dataclasses import dataclass
 
 import numpy as np
 
@@ -9,6 +10,17 @@ from . import geometry
 from .errors import TimeLimitExceeded
 from .modelhessian import lindh_hessian
 from .optimize import minimize
+
+
+@dataclass(frozen=True)
+class RelaxJob:
+    """One relaxation to run: start coords (N, 3) Bohr, convergence, start Hessian (3N, 3N)
+    Hartree/Bohr^2 or None for the model Hessian, constraints (optimize.Constraint objects)."""
+
+    coords_bohr: np.ndarray
+    convergence: object
+    hessian: np.ndarray | None = None
+    constraints: tuple = ()
 
 
 class Relaxer:
