@@ -396,9 +396,10 @@ def run_scan(args):
 
         result = rescore_result(result, level, args.dft_threads or usable_cores())
     if refine_level is not None:
-        from .workflows import refine_with_dft
+        from .workflows import checkpoint_for, refine_with_dft
 
-        result = refine_with_dft(result, refine_level, args.refine_points, args.reference, args.processes)
+        result = refine_with_dft(result, refine_level, args.refine_points, args.reference, args.processes,
+                                 cache=checkpoint_for(out_dir))
     write_results(result, out_dir)
     print(format_summary(result, out_dir))
     if args.fit_for:

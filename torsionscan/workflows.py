@@ -18,6 +18,8 @@ from .mm import read_mm_energies
 from .records import FitOptions
 from .refine import POINT_MODES, add_reference, refine_result
 from .reference import check_reference
+from .relaxcache import FILE_NAME as CHECKPOINT_FILE
+from .relaxcache import RelaxationCache
 from .rescore import check_level, parse_level, rescore_result
 
 REFERENCE_TIERS = ("coupled-cluster",)
@@ -89,10 +91,15 @@ def check_refinement(level_text, settings, points_mode="all", reference=None):
     return level
 
 
-def refine_with_dft(result, level, points_mode="all", reference=None, processes=None, threads=None):
+def checkpoint_for(folder):
+    """The refinement checkpoint kept beside a result folder (in its parent folder)."""
+    return RelaxationCache(Path(folder).resolve().parent / CHECKPOINT_FILE)
+
+
+def refine_with_dft(result, level, points_mode="all", reference=None, processes=None, threads=None, cache=None):
     """The ScanResult refined at a DFT level (and with the coupled-cluster reference if asked);
     processes: parallel optimisations (default all usable cores), each with `threads` threads
-    (default cores / processes)."""
+    (default cores / processes); cache: relaxcache.RelaxationCache of finished optimisations."""
     from .engines.dft import DftEngine
 
     if result.settings.solvent:
@@ -103,7 +110,7 @@ def refine_with_dft(result, level, points_mode="all", reference=None, processes=
         check_reference(result.symbols, result.charge, result.unpaired_electrons)
     factory = functools.partial(DftEngine, result.symbols, level, result.charge, result.unpaired_electrons, threads)
     factory()  # the level, checked on this molecule's elements and spin before any optimisation
-    refined = refine_result(result, factory, level.label, level.reference, points_mode, processes)
+    refined = refine_result(result, factory, level.label, level.reference, points_mode, processes, cache=cache)
     return add_reference(refined, processes, threads) if reference else refined
 
 
@@ -111,6 +118,6 @@ def refine_folder(folder, level_text, points_mode="all", reference=None, process
     """Refine every bond of a result folder at a DFT level; rewrites the folder, returns the ScanResult."""
     result = read_result(folder)
     level = check_refinement(level_text, result.settings, points_mode, reference)
-    result = refine_with_dft(result, level, points_mode, reference, processes)
+    result = refine_with_dft(result, level, points_mode, reference, processes, cache=checkpoint_for(folder))
     write_results(result, folder)
     return result
