@@ -154,6 +154,8 @@ ROWS = [
     ("list-binary-sdf", ["batch", "{d}/binary.sdf"], 2, "binary.sdf"),
     ("batch-cluster-not-url", ["batch", "{d}/ok.csv", "--cluster", "not a url"], 2, "--cluster"),
     ("batch-cluster-bad-port", ["batch", "{d}/ok.csv", "--cluster", "tcp://host:port"], 2, "--cluster"),
+    ("batch-cluster-no-port", ["batch", "{d}/ok.csv", "--cluster", "scheduler-host"], 2, "scheme://host:port"),
+    ("batch-cluster-port-too-big", ["batch", "{d}/ok.csv", "--cluster", "tcp://[::1]:70000"], 2, "--cluster"),
     ("batch-out-is-a-file", ["batch", "{d}/ok.csv", "--out", "{d}/a-file"], 2, "is a file"),
     ("batch-out-read-only", ["batch", "{d}/ok.csv", "--out", "/sys/torsionscan-run"], 5, "/sys/torsionscan-run"),
     ("batch-workers-zero", ["batch", "{d}/ok.csv", "--workers", "0"], 2, "--workers"),

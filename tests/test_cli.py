@@ -200,3 +200,15 @@ def test_a_molecule_argument_that_is_smiles_and_a_file_is_ambiguous(tmp_path, mo
     assert main(["bonds", "acrolein.mol"]) == 0
     assert main(["bonds", "--file", "acrolein.mol"]) == 0
     assert capsys.readouterr().out.count("1 conjugated single bond(s)") == 3
+
+
+def test_scheduler_addresses_are_checked_by_form():
+    from torsionscan.cli import _check_cluster_address
+    from torsionscan.errors import InputError
+
+    for address in ("tcp://scheduler-host:8786", "localhost:8786", "tls://10.0.0.1:8786", "tcp://[::1]:8786",
+                    "inproc://10.0.0.1/123/1", None):
+        _check_cluster_address(address)
+    for address in ("not a url", "scheduler-host", "tcp://host", "http://host:8786", "tcp://host:0", ""):
+        with pytest.raises(InputError, match="not a Dask scheduler address"):
+            _check_cluster_address(address)

@@ -316,14 +316,16 @@ _CLUSTER_ADDRESS = re.compile(r"(?:(?:tcp|tls|ws|wss|ucx)://)?(?:\[[0-9A-Fa-f:.]
 
 
 def _check_cluster_address(address):
-    """InputError unless address has the form of a Dask scheduler address (scheme://host:port)."""
+    """InputError unless address has the form of a Dask scheduler address: [tcp|tls|ws|wss|ucx://]host:port
+    (an IPv6 host in brackets) or inproc://..."""
     if address is None:
         return
     text = address.strip()
     match = _CLUSTER_ADDRESS.fullmatch(text)
-    if re.fullmatch(r"inproc://\S+", text) or (match and (not match["port"] or 0 < int(match["port"]) < 65536)):
+    if re.fullmatch(r"inproc://\S+", text) or (match and match["port"] and 0 < int(match["port"]) < 65536):
         return
-    raise InputError(f"--cluster {address!r} is not a Dask scheduler address; give one like tcp://scheduler-host:8786")
+    raise InputError(f"--cluster {address!r} is not a Dask scheduler address (scheme://host:port); give one like "
+                     "tcp://scheduler-host:8786")
 
 
 def _check_output_folder(folder, option="--out"):
