@@ -339,6 +339,16 @@ def test_csv_text_cells_that_look_like_formulas_are_written_as_text(bad_files, t
     assert cells["compound_wall_time_s"] == "-1.23"  # a negative number stays a number
     assert float(cells["global_min_deg"]) == rows[0]["global_min_deg"]
     assert rows[0]["name"] == formula  # the rows themselves (for the HTML report) keep the text
+    # rows without formula-like text come out exactly as csv.DictWriter writes them
+    plain_rows = compound_rows({**record, "name": "acrolein", "extra": {"supplier": "S-1"}}, result)
+    plain_columns = table_columns(result.settings.temperatures_k, ["supplier"])
+    with (tmp_path / "mine.csv").open("w", newline="") as handle:
+        write_table_csv(handle, plain_columns, plain_rows)
+    with (tmp_path / "dict.csv").open("w", newline="") as handle:
+        writer = csv.DictWriter(handle, fieldnames=plain_columns, extrasaction="ignore")
+        writer.writeheader()
+        writer.writerows(plain_rows)
+    assert (tmp_path / "mine.csv").read_text() == (tmp_path / "dict.csv").read_text()
 
     bond = result.bonds[0]
     points = list(bond.points)
