@@ -17,6 +17,7 @@ import numpy as np
 
 from .version import __version__
 from .analysis import analyse_profile, display_angle, in_arc, is_symmetric_rotor_profile
+from .bonding import graph_bonds
 from .coordinate import ScanCoordinate, mirror, mirror_hessian
 from .engines import CHARGE, CONJUGATION, SOLVENT, SPIN, make_engine
 from .errors import CalculationError, InputError
@@ -25,11 +26,12 @@ from .molecule import (
     find_conjugated_bonds, is_diene_bond, load_molecule, select_bond, side_atoms, starting_structures,
 )
 from .records import BondScan, Hysteresis, ScanPoint, ScanResult, StationaryRecord
-from .relax import Relaxer, RelaxJob
+from .relax import BONDING_CHANGED, Relaxer, RelaxJob
 from .settings import ScanSettings
 from .units import ANGSTROM_BOHR, HARTREE_KCAL_MOL, wrap_deg
 
 log = logging.getLogger(__name__)
+MAX_GAP_DEG = 90.0  # widest arc without a converged point that a profile may be fitted across
 
 
 def relax_start(molecule, relaxer, settings):
@@ -156,10 +158,25 @@ class BondScanner:
         the profile fitted and its minima and maxima refined with this scanner's engine."""
         chosen, hysteresis = self.chosen_points()
         circle = self.full_circle(chosen)
+        changed = [p for p, _ in circle if p.failure.startswith(BONDING_CHANGED)]
+        if 2 * len(changed) > len(circle):
+            raise CalculationError(
+                f"dihedral {self.bond.label}: {changed[0].failure[len(BONDING_CHANGED) + 2:]} at "
+                f"{changed[0].angle_deg:.0f} deg ({len(changed)} of {len(circle)} points changed their bonding); "
+                "this structure is not stable as given: check --charge and --unpaired-electrons")
         good = [p for p, _ in circle if p.converged]
         if len(good) < 5:
             raise CalculationError(f"dihedral {self.bond.label}: only {len(good)} scan points converged; "
                                    "try another --engine or check the structure")
+        angles = sorted(p.angle_deg % 360.0 for p in good)
+        gaps = [((b - a) % 360.0, a) for a, b in zip(angles, angles[1:] + angles[:1])]
+        widest, after = max(gaps)
+        if widest > MAX_GAP_DEG:
+            failed = next((p for p, _ in circle if in_arc(p.angle_deg, after, after + widest) and p.failure), None)
+            raise CalculationError(
+                f"dihedral {self.bond.label}: no converged point from {display_angle(after):.0f} to "
+                f"{display_angle(after + widest):.0f} deg, so the profile cannot be fitted there"
+                + (f" (at {failed.angle_deg:.0f} deg: {failed.failure})" if failed else ""))
         profile = analyse_profile(
             [p.angle_deg for p in good], [p.energy_hartree for p in good], self.symmetric,
             self.settings.temperatures_k, self.settings.scis_window_deg,
@@ -324,7 +341,7 @@ def scan(source, *, bond=None, name=None, charge=None, unpaired_electrons=0, rec
             method=settings.method, backend=settings.engine, solvent=settings.solvent,
             solvation=settings.solvation_model,
         )
-    relaxer = Relaxer(engine, molecule.numbers, deadline)
+    relaxer = Relaxer(engine, molecule.numbers, deadline, graph_bonds(molecule.mol))
     coords, energy, hessian, start_evaluations = relax_start(molecule, relaxer, settings)
     scans, failed = [], []
     for b in bonds:

@@ -26,6 +26,7 @@ from dataclasses import replace
 import numpy as np
 
 from .analysis import barriers_between, display_angle
+from .bonding import graph_bonds
 from .coordinate import DihedralConstraint, mirror
 from .driver import BondScanner
 from .engines import make_engine
@@ -49,10 +50,11 @@ THERMAL_NOTE = ("thermal corrections (G - E) and frequencies of the scan's stati
 def _relax(task):
     """One relaxation at the refined level (in this or a worker process): the OptimizationResult,
     or the CalculationError with the gradients it used as `evaluations`."""
-    engine_factory, numbers, job = task
+    engine_factory, numbers, bonds, job = task
     engine = engine_factory()
     try:
-        return Relaxer(engine, numbers).relax(job.coords_bohr, job.convergence, job.hessian, job.constraints)
+        return Relaxer(engine, numbers, bonds=bonds).relax(job.coords_bohr, job.convergence, job.hessian,
+                                                           job.constraints)
     except CalculationError as error:
         error.evaluations = engine.evaluations
         return error
@@ -63,8 +65,8 @@ class Relaxations:
     checkpoint cache, the others run in parallel spawned processes (each building its own engine
     from the picklable engine_factory) and stored as they finish. Use as a context manager."""
 
-    def __init__(self, engine_factory, numbers, level_label, processes=1, cache=None, start_tag=""):
-        self.engine_factory, self.numbers, self.level = engine_factory, numbers, level_label
+    def __init__(self, engine_factory, numbers, bonds, level_label, processes=1, cache=None, start_tag=""):
+        self.engine_factory, self.numbers, self.bonds, self.level = engine_factory, numbers, bonds, level_label
         self.processes, self.cache, self.start_tag = processes, cache, start_tag
         self.evaluations = 0  # gradients of every relaxation returned, read from the cache or not
         self._pool = None
@@ -78,7 +80,7 @@ class Relaxations:
         return False
 
     def _run(self, jobs):
-        tasks = [(self.engine_factory, self.numbers, job) for job in jobs]
+        tasks = [(self.engine_factory, self.numbers, self.bonds, job) for job in jobs]
         if self.processes <= 1 or len(tasks) <= 1:
             yield from map(_relax, tasks)
             return
@@ -147,7 +149,8 @@ def _refine_all(result, bond, relaxations, start_engine):
     sources = bond.relaxed_points
     molecule = Molecule(result.name, result.mol, result.charge, result.unpaired_electrons)
     scanner = BondScanner(molecule, TorsionBond(bond.dihedral_atoms, bond.conjugated),
-                          Relaxer(relaxations.engine_factory(), numbers), settings, relaxations)
+                          Relaxer(relaxations.engine_factory(), numbers, bonds=relaxations.bonds), settings,
+                          relaxations)
     hessians = start_hessians(start_engine, [p.coords_bohr for p in sources])
     jobs = [RelaxJob(p.coords_bohr, settings.point_convergence, h,
                      (DihedralConstraint(bond.dihedral_atoms, math.radians(p.angle_deg)),))
@@ -279,7 +282,7 @@ def refine_result(result, engine_factory, level_label, level_reference="", point
     bonds = []
     for bond in result.bonds:
         started = time.perf_counter()
-        with Relaxations(engine_factory, numbers, level_label, processes, cache,
+        with Relaxations(engine_factory, numbers, graph_bonds(result.mol), level_label, processes, cache,
                          f"start Hessian: {start_engine.method} finite differences") as relaxations:
             if points_mode == "all":
                 points, analysis, verdict = _refine_all(result, bond, relaxations, start_engine)

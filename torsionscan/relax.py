@@ -7,9 +7,12 @@ from dataclasses import dataclass
 import numpy as np
 
 from . import geometry
-from .errors import TimeLimitExceeded
+from .bonding import bonding_changes
+from .errors import CalculationError, TimeLimitExceeded
 from .modelhessian import lindh_hessian
 from .optimize import minimize
+
+BONDING_CHANGED = "the bonding changed during relaxation"
 
 
 @dataclass(frozen=True)
@@ -24,12 +27,14 @@ class RelaxJob:
 
 
 class Relaxer:
-    """Minimisations of one molecule with one engine (Bohr, Hartree), within an optional deadline."""
+    """Minimisations of one molecule with one engine (Bohr, Hartree), within an optional deadline;
+    given the molecule's bonds (bonding.graph_bonds), a relaxation that changes them fails."""
 
-    def __init__(self, engine, numbers, deadline=None):
+    def __init__(self, engine, numbers, deadline=None, bonds=None):
         self.engine = engine
         self.numbers = numbers
         self.deadline = deadline  # time.monotonic() value after which no new gradient is started
+        self.bonds = bonds
 
     def _objective(self, x):
         if self.deadline is not None and time.monotonic() > self.deadline:
@@ -49,7 +54,12 @@ class Relaxer:
         """Minimise from coords (N, 3) under the given constraints (optimize.Constraint objects)."""
         if hessian is None:
             hessian = lindh_hessian(self.numbers, coords_bohr)
-        return minimize(
+        result = minimize(
             self._objective, np.ravel(coords_bohr), hessian, constraints=list(constraints),
             invariant_directions=self._rigid, convergence=convergence,
         )
+        if self.bonds is not None:
+            changes = bonding_changes(self.numbers, self.bonds, result.x.reshape(-1, 3))
+            if changes:
+                raise CalculationError(f"{BONDING_CHANGED}: {'; '.join(changes)}")
+        return result

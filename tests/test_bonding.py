@@ -1,0 +1,67 @@
+"""A relaxation that changes the molecule is caught: bonds perceived from covalent radii at the
+relaxed structure against the input's graph, and a profile with a wide failed arc is refused."""
+
+import numpy as np
+import pytest
+
+import torsionscan
+from torsionscan.bonding import bonding_changes, graph_bonds
+from torsionscan.engines.model import ModelEngine
+from torsionscan.errors import CalculationError
+from torsionscan.molecule import find_conjugated_bonds, load_molecule, starting_structures
+from torsionscan.profile import FourierSeries
+from torsionscan.units import ANGSTROM_BOHR
+
+
+@pytest.fixture(scope="module")
+def acrolein():
+    molecule = load_molecule("C=CC=O")
+    return molecule, starting_structures(molecule, 1)[0] * ANGSTROM_BOHR
+
+
+def test_an_intact_structure_has_no_changes(acrolein):
+    molecule, coords = acrolein
+    assert bonding_changes(molecule.numbers, graph_bonds(molecule.mol), coords) == []
+
+
+def test_a_migrated_hydrogen_is_named_with_both_carbons(acrolein):
+    molecule, coords = acrolein
+    mol = molecule.mol
+    aldehyde_h = next(a.GetIdx() for a in mol.GetAtomWithIdx(2).GetNeighbors() if a.GetAtomicNum() == 1)
+    moved = coords.copy()
+    normal = np.cross(coords[0] - coords[1], coords[2] - coords[1])  # out of the heavy-atom plane at C2
+    moved[aldehyde_h] = coords[1] + 1.09 * ANGSTROM_BOHR * normal / np.linalg.norm(normal)
+    changes = bonding_changes(molecule.numbers, graph_bonds(mol), moved)
+    assert changes == [f"H{aldehyde_h + 1} moved from C3 to C2"]
+
+
+def test_a_broken_bond_is_reported_with_its_length(acrolein):
+    molecule, coords = acrolein
+    apart = coords.copy()
+    apart[2:4] += np.array([5.0, 0.0, 0.0]) * ANGSTROM_BOHR  # C3 and O4 (with nothing else) pulled away
+    changes = bonding_changes(molecule.numbers, graph_bonds(molecule.mol), apart)
+    assert any(c.startswith("bond C2-C3 broken") for c in changes)
+
+
+def test_a_stretched_but_intact_bond_is_not_a_change(acrolein):
+    molecule, coords = acrolein
+    stretched = coords.copy()
+    stretched[3] = coords[2] + 1.3 * (coords[3] - coords[2])  # C=O 30 % longer: strained, still bonded
+    assert bonding_changes(molecule.numbers, graph_bonds(molecule.mol), stretched) == []
+
+
+def test_a_profile_with_a_wide_failed_arc_is_refused():
+    molecule = load_molecule("C=CC=C")
+    atoms = find_conjugated_bonds(molecule)[0].atoms
+    engine = ModelEngine(molecule.mol, [(atoms, FourierSeries(0.0, (1.0, -1.5, 1.2), (0.0, 0.0, 0.0)))],
+                         fail_near_deg=range(-60, 61, 15), fail_tolerance_deg=8.0)
+    with pytest.raises(CalculationError, match=r"no converged point from -75 to 75 deg.*model failure"):
+        torsionscan.scan("C=CC=C", engine=engine, settings=torsionscan.ScanSettings(conformers=1, frequencies=False))
+
+
+@pytest.mark.xtb
+def test_a_dication_that_falls_apart_is_not_reported_as_a_profile():
+    # GFN2-xTB acrolein dication: hydrogen migration and C-C fragmentation on the s-cis side
+    with pytest.raises(CalculationError, match="bonding changed"):
+        torsionscan.scan("C=CC=O", charge=2, settings=torsionscan.ScanSettings(conformers=1, step_deg=30.0,
+                                                                               frequencies=False))
