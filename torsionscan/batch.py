@@ -200,11 +200,24 @@ def _death(exitcode):
     return f"signal {-exitcode}" if exitcode < 0 else f"exit status {exitcode}"
 
 
-def _worker_loop(connection):
+def _end_with_parent(parent_pid):
+    """Linux: have the kernel kill this process when the parent dies (its outcome could not be stored)."""
+    try:
+        import ctypes
+
+        ctypes.CDLL(None, use_errno=True).prctl(1, signal.SIGKILL)  # PR_SET_PDEATHSIG
+    except (OSError, AttributeError):  # not Linux: the worker ends when it next talks to the pipe
+        return
+    if os.getppid() != parent_pid:  # the parent died before the request took effect
+        os._exit(0)
+
+
+def _worker_loop(connection, parent_pid):
     """Body of one local worker process: say it is ready, then compute each job received and send its
     outcome back; stop at None or when the parent is gone. Ctrl-C is the parent's business only."""
     signal.signal(signal.SIGINT, signal.SIG_IGN)
     signal.pthread_sigmask(signal.SIG_UNBLOCK, {signal.SIGINT})  # blocked by the parent while starting us
+    _end_with_parent(parent_pid)
     try:
         connection.send(("ready", None))
         while True:
@@ -221,7 +234,8 @@ class _Worker:
 
     def __init__(self, context, threads):
         self.connection, child_end = context.Pipe()
-        self.process = context.Process(target=_worker_loop, args=(child_end,), name="torsionscan-worker")
+        self.process = context.Process(target=_worker_loop, args=(child_end, os.getpid()),
+                                       name="torsionscan-worker")
         saved = {variable: os.environ.get(variable) for variable in THREAD_VARIABLES}
         os.environ.update({variable: str(threads) for variable in THREAD_VARIABLES})  # inherited by the child
         # the child starts with Ctrl-C ignored (an ignored signal stays ignored across exec and Python then

@@ -149,8 +149,13 @@ def write_results(result, out_dir, figures=None):
         temporary = Path(tempfile.mkdtemp(dir=out_dir.parent, prefix=f".{out_dir.name}.", suffix=".partial"))
         _write_files(result, temporary, figures)
         os.chmod(temporary, 0o777 & ~_UMASK)  # a new folder's usual permissions, not mkdtemp's 0700
-        os.replace(temporary, out_dir)  # also replaces an empty folder of that name
-        temporary = None
+        try:
+            os.replace(temporary, out_dir)  # also replaces an empty folder of that name
+            temporary = None
+        except OSError as error:
+            if error.errno not in (errno.ENOTEMPTY, errno.EEXIST) or not out_dir.is_dir():
+                raise
+            _write_files(result, out_dir, figures)  # written meanwhile by another process: update it in place
     except OSError as error:
         raise storage_error(out_dir, error) from None
     except StorageError as error:  # name the folder asked for, not its temporary sibling
