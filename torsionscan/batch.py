@@ -224,7 +224,13 @@ def _worker_loop(connection, parent_pid):
             job = connection.recv()
             if job is None:
                 return
-            connection.send(("outcome", scan_compound(job)))
+            outcome = scan_compound(job)
+            try:
+                connection.send(("outcome", outcome))  # pickled whole before anything is written
+            except (pickle.PicklingError, TypeError, AttributeError) as error:
+                connection.send(("outcome", {"name": job["name"], "status": "failed", "worker": outcome.get("worker"),
+                                             "reason": f"the outcome could not be sent back: {type(error).__name__}: "
+                                                       f"{error}"}))
     except (EOFError, OSError):  # the parent ended: nobody wants the outcome
         return
 
@@ -232,33 +238,36 @@ def _worker_loop(connection, parent_pid):
 class _Worker:
     """One spawned worker process, the pipe to it and the job it holds (at most one)."""
 
-    def __init__(self, context, threads):
-        self.connection, child_end = context.Pipe()
-        self.process = context.Process(target=_worker_loop, args=(child_end, os.getpid()),
-                                       name="torsionscan-worker")
+    def __init__(self, context):
+        self.connection, self._child_end = context.Pipe()
+        # daemon: should one ever be left behind, the exit of this process ends it rather than waiting for it
+        self.process = context.Process(target=_worker_loop, args=(self._child_end, os.getpid()),
+                                       name="torsionscan-worker", daemon=True)
+        self.ready = False
+        self.job = None
+        self.sent_at = None
+
+    def start(self, threads):
         saved = {variable: os.environ.get(variable) for variable in THREAD_VARIABLES}
         os.environ.update({variable: str(threads) for variable in THREAD_VARIABLES})  # inherited by the child
         # the child starts with Ctrl-C ignored (an ignored signal stays ignored across exec and Python then
         # installs no KeyboardInterrupt handler), so a terminal's Ctrl-C reaches only this process
         mask = signal.pthread_sigmask(signal.SIG_BLOCK, {signal.SIGINT})
         previous = None
-        if threading.current_thread() is threading.main_thread():
-            previous = signal.signal(signal.SIGINT, signal.SIG_IGN)
         try:
+            if threading.current_thread() is threading.main_thread():
+                previous = signal.signal(signal.SIGINT, signal.SIG_IGN)
             self.process.start()
         finally:
-            if previous is not None:
-                signal.signal(signal.SIGINT, previous)
-            signal.pthread_sigmask(signal.SIG_SETMASK, mask)  # a Ctrl-C meanwhile is delivered now
             for variable, value in saved.items():
                 if value is None:
                     os.environ.pop(variable, None)
                 else:
                     os.environ[variable] = value
-            child_end.close()
-        self.ready = False
-        self.job = None
-        self.sent_at = None
+            self._child_end.close()
+            if previous is not None:
+                signal.signal(signal.SIGINT, previous)
+            signal.pthread_sigmask(signal.SIG_SETMASK, mask)  # last: a Ctrl-C meanwhile is delivered now
 
     def give(self, job):
         self.job, self.sent_at = job, time.perf_counter()
@@ -272,13 +281,21 @@ class _Worker:
             return None
 
     def alive(self):
-        return self.process.is_alive()
+        return self.process.pid is not None and self.process.is_alive()
 
 
 def _stop_workers(pool, interrupts):
     """End every worker: a clean stop to idle ones, SIGTERM to busy ones, SIGKILL after the grace time
     (at once after a second Ctrl-C); then reap them so no process is left behind."""
     interrupts.stopping = True
+    try:
+        _end_workers(pool, interrupts)
+    finally:
+        interrupts.stopping = False
+
+
+def _end_workers(pool, interrupts):
+    pool = [worker for worker in pool if worker.process.pid is not None]  # started ones
     for worker in pool:
         if worker.alive():
             try:
@@ -313,9 +330,10 @@ def _local_outcomes(jobs, workers, threads_per_worker, interrupts, note=log.warn
     start_failures = 0
 
     def start_worker(job=None):
-        worker = _Worker(context, threads_per_worker)
+        worker = _Worker(context)
         worker.job = job  # handed over once the worker says it is ready
-        pool.append(worker)
+        pool.append(worker)  # before it starts: whatever happens next, the pool ends it
+        worker.start(threads_per_worker)
 
     def next_job():
         return queue.popleft() if queue and not interrupts.requested else None
