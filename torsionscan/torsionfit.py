@@ -57,23 +57,54 @@ def term_energy(terms, angle_deg):
 def fit_terms(angle_deg, target_kcal_mol, max_periodicity=DEFAULT_MAX_PERIODICITY, free_phases=False,
               weights=None, ridge=RIDGE):
     """Least-squares terms n = 1..max_periodicity for target(phi) ~ constant + sum of terms."""
+    joint = fit_joint_terms([angle_deg], [target_kcal_mol], max_periodicity, free_phases,
+                            None if weights is None else [weights], ridge)
+    return TermFit(joint.terms, joint.constants_kcal_mol[0], joint.rmse_kcal_mol[0])
+
+
+@dataclass(frozen=True)
+class JointFit:
+    """One set of terms shared by several profiles, each profile with its own constant offset."""
+
+    terms: tuple[TorsionTerm, ...]
+    constants_kcal_mol: tuple[float, ...]  # per profile: the offset it needed (not part of the terms)
+    rmse_kcal_mol: tuple[float, ...]  # per profile: unweighted RMS of target vs its constant + terms
+
+
+def fit_joint_terms(angle_lists, target_lists, max_periodicity=DEFAULT_MAX_PERIODICITY, free_phases=False,
+                    weight_lists=None, ridge=RIDGE):
+    """Least-squares terms n = 1..max_periodicity shared by every profile p: target_p(phi) ~ c_p + sum of
+    terms, one free constant c_p per profile. Weights per point (default 1); the ridge penalty is
+    relative to the summed weights of all profiles and applies to the shared coefficients only."""
     if not 1 <= max_periodicity <= MAX_PERIODICITY:
         raise ValueError(f"periodicities go from 1 to at most {MAX_PERIODICITY}, got {max_periodicity}")
-    phi = np.radians(np.asarray(angle_deg, dtype=float))
-    target = np.asarray(target_kcal_mol, dtype=float)
-    w = np.ones_like(phi) if weights is None else np.asarray(weights, dtype=float)
+    if not angle_lists or len(angle_lists) != len(target_lists):
+        raise ValueError("give one target list per angle list, at least one profile")
+    phis = [np.radians(np.asarray(a, dtype=float)) for a in angle_lists]
+    targets = [np.asarray(t, dtype=float) for t in target_lists]
+    if weight_lists is None:
+        weights = [np.ones_like(phi) for phi in phis]
+    else:
+        weights = [np.asarray(w, dtype=float) for w in weight_lists]
     n = np.arange(1, max_periodicity + 1)
-    columns = [np.ones_like(phi), *np.cos(np.outer(phi, n)).T]
-    if free_phases:
-        columns += list(np.sin(np.outer(phi, n)).T)
-    design = np.column_stack(columns)
+    profiles = len(phis)
+    blocks = []
+    for p, phi in enumerate(phis):
+        offsets = np.zeros((len(phi), profiles))
+        offsets[:, p] = 1.0
+        columns = [np.cos(np.outer(phi, n))]
+        if free_phases:
+            columns.append(np.sin(np.outer(phi, n)))
+        blocks.append(np.hstack([offsets, *columns]))
+    design = np.vstack(blocks)
+    w = np.concatenate(weights)
     root_w = np.sqrt(w)
-    penalty = math.sqrt(ridge * w.sum()) * np.eye(design.shape[1])[1:]
+    penalty = math.sqrt(ridge * w.sum()) * np.eye(design.shape[1])[profiles:]
     system = np.vstack([design * root_w[:, None], penalty])
-    rhs = np.concatenate([target * root_w, np.zeros(len(penalty))])
+    rhs = np.concatenate([np.concatenate(targets) * root_w, np.zeros(len(penalty))])
     coefficients, *_ = np.linalg.lstsq(system, rhs, rcond=None)
-    cos_part = coefficients[1:1 + max_periodicity]
-    sin_part = coefficients[1 + max_periodicity:] if free_phases else np.zeros(max_periodicity)
+    cos_part = coefficients[profiles:profiles + max_periodicity]
+    sin_part = coefficients[profiles + max_periodicity:] if free_phases else np.zeros(max_periodicity)
     terms = []
     for periodicity, a, b in zip(n, cos_part, sin_part):
         k = math.hypot(a, b)
@@ -82,9 +113,11 @@ def fit_terms(angle_deg, target_kcal_mol, max_periodicity=DEFAULT_MAX_PERIODICIT
             phase = 0.0 if a >= 0 else 180.0
         terms.append(TorsionTerm(int(periodicity), phase, k if k > _ZERO_K else 0.0))
     terms = tuple(terms)
-    constant = float(coefficients[0]) - sum(t.k_kcal_mol for t in terms)
-    residual = target - constant - term_energy(terms, angle_deg)
-    return TermFit(terms, constant, float(np.sqrt(np.mean(residual ** 2))))
+    total_k = sum(t.k_kcal_mol for t in terms)
+    constants = tuple(float(c) - total_k for c in coefficients[:profiles])
+    rmse = tuple(float(np.sqrt(np.mean((target - c - term_energy(terms, np.degrees(phi))) ** 2)))
+                 for target, c, phi in zip(targets, constants, phis))
+    return JointFit(terms, constants, rmse)
 
 
 def profile_errors(reference_kcal_mol, model_kcal_mol):
