@@ -201,7 +201,7 @@ def test_a_full_or_read_only_database_raises_storage_error_and_keeps_what_was_co
         pages = store._db.execute("PRAGMA page_count").fetchone()[0]
         store._db.execute(f"PRAGMA max_page_count = {pages}")  # SQLite's own "database or disk is full"
         with pytest.raises(StorageError, match=r"cannot write run.sqlite in .* \(database or disk is full\): free "
-                                               "space, then rerun the same command to continue"):
+                                               "space or choose another --out$"):
             store.record_done("b", model_scan, session, 1.0)
         store._db.execute("PRAGMA query_only = 1")  # refuses writes as a read-only file does
         with pytest.raises(StorageError, match=r"cannot write run.sqlite in .* \(attempt to write a readonly "

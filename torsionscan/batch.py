@@ -571,7 +571,7 @@ def run_batch(list_path, out_dir, settings, options=BatchOptions(), progress=Non
 
 
 def _done_count(store):
-    """'N done' of a run database, or '' when even that cannot be read."""
+    """'N done' of a run database, or 'count unavailable' when even that cannot be read."""
     try:
         return f"{store.counts()['done']} done"
     except StorageError:

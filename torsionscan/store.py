@@ -122,7 +122,7 @@ def storage_problem(folder, error):
     if code in (_SQLITE_CORRUPT, _SQLITE_NOTADB) or type(error) is sqlite3.DatabaseError:
         return StorageError(f"{where} is not a readable run database ({error}); move it away or choose another --out")
     if code == _SQLITE_FULL:
-        return StorageError(f"cannot write {where} ({error}): free space, then rerun the same command to continue")
+        return StorageError(f"cannot write {where} ({error}): free space or choose another --out")
     if code in (_SQLITE_BUSY, _SQLITE_LOCKED):
         return StorageError(f"{where} is locked by another process ({error}); wait for it to finish or choose "
                             "another --out")
