@@ -550,8 +550,9 @@ def build_parser():
                             help="MM energies without this bond's torsion terms, one row per frame of "
                                  "bond_<j-k>_scan.xyz (column energy_kcal_mol or energy_kj_mol)")
     _add_fit_options(fit_parser)
-    fit_parser.add_argument("--quantum", choices=["gfn", "rescored"], default="gfn",
-                            help="fit to the scan's own energies or to its DFT re-scored ones")
+    fit_parser.add_argument("--quantum", choices=["gfn", "rescored", "refined"], default="gfn",
+                            help="fit to the scan's own energies, its DFT re-scored ones or its refined profile "
+                                 "(MM energies then at the refined structures)")
     fit_parser.set_defaults(handler=run_fit)
 
     rescore_parser = commands.add_parser("rescore", help="re-score a finished scan's geometries with DFT single points")
