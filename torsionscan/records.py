@@ -374,6 +374,73 @@ class TorsionFit:
 
 
 @dataclass(frozen=True)
+class TypeMember:
+    """One scanned bond as a member of a torsion type fitted across molecules (kcal/mol).
+
+    dihedral_atoms (0-based) are in the order of the type's atom classes (the bond's own quartet,
+    reversed where the type reads it the other way; the dihedral angle is the same). RMS errors
+    are against the quantum profile after the best constant shift: MMFF94 as it is, MMFF94 without
+    the bond's torsion terms, with the type's terms, and with the terms fitted without this
+    member's molecule (None for a type of one molecule). Curves at profile_angles_deg (sorted),
+    each MM curve shifted by its best constant onto the quantum one.
+    """
+
+    compound: str
+    bond: str  # "j-k", 1-based
+    dihedral_atoms: tuple[int, int, int, int]
+    mmff_types: tuple[int, ...] | None
+    quantum_profile: str  # the method or level whose energies were fitted
+    constant_kcal_mol: float  # this profile's own offset in the joint fit
+    rmse_mm_kcal_mol: float
+    rmse_without_torsion_kcal_mol: float
+    rmse_fit_kcal_mol: float
+    rmse_leave_out_kcal_mol: float | None
+    profile_angles_deg: tuple[float, ...]
+    qm_kcal_mol: tuple[float, ...]
+    mm_with_fit_kcal_mol: tuple[float, ...]
+    mm_full_kcal_mol: tuple[float, ...]
+
+
+@dataclass(frozen=True)
+class TorsionTypeFit:
+    """One set of dihedral terms sum_n k_n [1 + cos(n phi - phase_n)] for every bond of a torsion type.
+
+    classes: the atom-class names the parameter files use for the type's four atoms. RMS errors
+    pool every member point (each member after its best constant shift); rmse_leave_out_kcal_mol
+    is the leave-one-molecule-out error (None with one molecule); transferable is None when that
+    check was impossible.
+    """
+
+    label: str
+    classes: tuple[str, str, str, str]
+    definition: str  # what the type is: its MMFF94 atom types or its SMARTS pattern
+    terms: tuple[TorsionTerm, ...]
+    members: tuple[TypeMember, ...]
+    molecule_count: int
+    point_count: int
+    rmse_mm_kcal_mol: float
+    rmse_without_torsion_kcal_mol: float
+    rmse_fit_kcal_mol: float
+    rmse_leave_out_kcal_mol: float | None
+    transferable: bool | None
+    verdict: str  # the transfer check in words
+
+
+@dataclass(frozen=True)
+class TorsionParameterSet:
+    """Torsion types fitted across the compounds of a run, and the bonds left out (with the reason)."""
+
+    typing: str  # "mmff94" or the SMARTS pattern file
+    mm_model: str
+    quantum: str  # "gfn", "rescored" or "refined"
+    options: FitOptions
+    types: tuple[TorsionTypeFit, ...]
+    left_out: tuple[tuple[str, str, str], ...]  # (compound, bond "j-k", reason)
+    program: str
+    fit_seconds: float
+
+
+@dataclass(frozen=True)
 class BondScan:
     """Everything measured for one dihedral."""
 
