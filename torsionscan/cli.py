@@ -451,6 +451,24 @@ def run_fit(args):
     return 0
 
 
+def run_fit_set(args):
+    from .output.parameters import summary_lines
+    from .workflows import fit_set_run
+
+    options = _fit_options(args)
+    options.check()
+    parameters, written = fit_set_run(args.run, args.types, args.formats, args.out, options, args.quantum)
+    print("\n".join(summary_lines(parameters)))
+    single = [fit.label for fit in parameters.types if fit.molecule_count == 1]
+    if single:
+        log.warning("%d type(s) with one molecule only, fitted without a transfer check (add molecules with these "
+                    "types to check them): %s", len(single), ", ".join(single))
+    files = [str(path) for kind, path in written.items() if not isinstance(path, list)]
+    print(f"files: {', '.join(files)}; {len(written['figures'])} type figures"
+          + (f", {len(written['member forces'])} per-bond OpenMM forces" if "member forces" in written else ""))
+    return 0
+
+
 def run_bonds(args):
     from .molecule import find_conjugated_bonds, load_molecule, numbered_smiles
 
@@ -554,6 +572,20 @@ def build_parser():
                             help="fit to the scan's own energies, its DFT re-scored ones or its refined profile "
                                  "(MM energies then at the refined structures)")
     fit_parser.set_defaults(handler=run_fit)
+
+    fit_set_parser = commands.add_parser(
+        "fit-set", help="fit one set of torsion terms per torsion type across a batch run, written for MD engines")
+    fit_set_parser.add_argument("run", type=Path, help="run folder of a batch")
+    fit_set_parser.add_argument("--types", default="mmff94", metavar="mmff94|CSV",
+                                help="torsion types: mmff94 (the MMFF94 atom types of the four dihedral atoms, default) "
+                                     "or a CSV table name,smarts[,classes] of SMARTS patterns with atoms :1-:4")
+    fit_set_parser.add_argument("--formats", default="amber,gromacs,charmm,openmm", metavar="LIST",
+                                help="parameter files to write: any of amber, gromacs, charmm, openmm (default all)")
+    fit_set_parser.add_argument("--out", type=Path, help="output folder (default RUN/torsion_parameters)")
+    fit_set_parser.add_argument("--quantum", choices=["gfn", "rescored", "refined"], default="gfn",
+                                help="fit the scans' own energies, their DFT re-scored ones or the refined profiles")
+    _add_fit_options(fit_set_parser)
+    fit_set_parser.set_defaults(handler=run_fit_set)
 
     rescore_parser = commands.add_parser("rescore", help="re-score a finished scan's geometries with DFT single points")
     rescore_parser.add_argument("folder", type=Path, help="result folder of a scan")

@@ -78,6 +78,57 @@ def fit_folder(folder, bond=None, options=None, mm_energies_path=None, quantum="
     return fits
 
 
+FIT_SET_FOLDER = "torsion_parameters"  # default output folder of fit_set_run, inside the run folder
+
+
+def check_fit_set(types, formats_text):
+    """(typing, its label, formats) of a fit-set request, checked before any work: types is "mmff94"
+    or a CSV table of SMARTS patterns (torsiontypes.read_type_patterns)."""
+    from .output.parameters import check_classes, parse_formats
+    from .torsiontypes import MMFF94_TYPING, read_type_patterns
+
+    formats = parse_formats(formats_text)
+    if str(types).strip().lower() == MMFF94_TYPING:
+        return MMFF94_TYPING, "MMFF94 atom types", formats
+    path = Path(types)
+    if not path.is_file():
+        raise InputError(f"--types {types}: neither mmff94 nor a file; give mmff94 or a CSV table with columns "
+                         "name,smarts")
+    patterns = read_type_patterns(path)
+    check_classes(formats, [c for p in patterns for c in p.classes])
+    return patterns, f"SMARTS patterns of {path.name}", formats
+
+
+def run_results(run_folder):
+    """(name, ScanResult) of every done compound of a batch run folder, in list order."""
+    from .store import RunStore
+
+    with RunStore(run_folder, create=False) as store:
+        names = store.names("done")
+        if not names:
+            raise InputError(f"{run_folder} holds no finished compound; run 'torsionscan batch LIST --out {run_folder}' "
+                             "first")
+        return [(name, store.result(name)) for name in names]
+
+
+def fit_set_run(run_folder, types="mmff94", formats_text="amber,gromacs,charmm,openmm", out_dir=None,
+                options=None, quantum="gfn"):
+    """Fit one set of torsion terms per torsion type across every done compound of a batch run and
+    write the parameter files (output.parameters); returns (TorsionParameterSet, written paths)."""
+    from .output import check_output_folder
+    from .output.parameters import write_parameter_set
+    from .torsiontypes import fit_parameter_set
+
+    typing, label, formats = check_fit_set(types, formats_text)
+    options = options or FitOptions()
+    options.check()
+    out_dir = Path(out_dir) if out_dir is not None else Path(run_folder) / FIT_SET_FOLDER
+    results = run_results(run_folder)
+    check_output_folder(out_dir)
+    parameters = fit_parameter_set(results, typing, options, quantum, label)
+    return parameters, write_parameter_set(parameters, out_dir, formats)
+
+
 def check_refinement(level_text, settings, points_mode="all", reference=None):
     """The DFT Level of a refinement request, checked before any scan (one-line InputError otherwise)."""
     level = parse_level(level_text)

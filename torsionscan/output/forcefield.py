@@ -36,11 +36,17 @@ def terms_table_rows(fit):
 
 def openmm_torsion_xml(fit):
     """The terms of a TorsionFit as a serialized OpenMM PeriodicTorsionForce (XML text)."""
-    p1, p2, p3, p4 = fit.dihedral_atoms
+    return openmm_force_xml(fit.dihedral_atoms, fit.terms)
+
+
+def openmm_force_xml(dihedral_atoms, terms):
+    """Terms (torsionfit.TorsionTerm) on one quartet (0-based atom indices) as a serialized OpenMM
+    PeriodicTorsionForce: k in kJ/mol, phase in radians, the energy k [1 + cos(n phi - phase)]."""
+    p1, p2, p3, p4 = dihedral_atoms
     lines = ['<?xml version="1.0" ?>',
              '<Force forceGroup="0" name="PeriodicTorsionForce" type="PeriodicTorsionForce" usesPeriodic="0" version="2">',
              "\t<Torsions>"]
-    for term in fit.terms:
+    for term in terms:
         lines.append(
             f'\t\t<Torsion k={quoteattr(repr(term.k_kj_mol))} p1="{p1}" p2="{p2}" p3="{p3}" p4="{p4}" '
             f'periodicity="{term.periodicity}" phase={quoteattr(repr(math.radians(term.phase_deg)))}/>'
