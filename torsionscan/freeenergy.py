@@ -27,11 +27,14 @@ from .rotor import (
 )
 from .thermo import is_s_cis
 from .rrho import conformer_populations, harmonic_frequencies, rrho_thermo
+from .symmetry import symmetric_hessian
 from .units import HARTREE_KCAL_MOL, rt_kcal_mol
 
 log = logging.getLogger(__name__)
 
 FD_STEP_BOHR = 0.005
+PLANAR_DEG = 0.05  # a stationary point this close to 0 deg is the planar s-cis structure
+SAME_STRUCTURE_BOHR = 0.01  # largest atom displacement between two structures that share one Hessian
 QUASI_HARMONIC_CUTOFF_CM1 = 100.0
 
 
@@ -62,13 +65,35 @@ def finite_difference_hessian(gradient_of, coords_bohr, step_bohr=FD_STEP_BOHR, 
     return 0.5 * (hessian + hessian.T) if symmetrise else hessian
 
 
-def analyse(gradient_of, masses_amu, coords_bohr, dihedral_atoms, temperatures_k, freeze_torsion=False,
+class Hessians:
+    """Finite-difference Hessians through an engine's gradient, one per distinct structure: a
+    structure within SAME_STRUCTURE_BOHR of one already done (the planar s-cis structure and a
+    stationary point at 0 deg) reuses its Hessian; equivalent displacements of a symmetric
+    structure are skipped (symmetry.symmetric_hessian)."""
+
+    def __init__(self, gradient_of, masses_amu):
+        self.gradient_of, self.masses = gradient_of, np.asarray(masses_amu, dtype=float)
+        self.done = []  # (coords given, coords used, hessian)
+
+    def __call__(self, coords_bohr):
+        """(Hessian (3N, 3N) Hartree/Bohr^2, the structure it belongs to (N, 3) Bohr)."""
+        for given, used, hessian in self.done:
+            if np.abs(given - coords_bohr).max() < SAME_STRUCTURE_BOHR:
+                return hessian, used
+        # atoms are matched by mass: every atom of one element has the same (average) mass here
+        hessian, used, _ = symmetric_hessian(self.gradient_of, np.round(self.masses, 4), self.masses, coords_bohr,
+                                             FD_STEP_BOHR)
+        self.done.append((np.array(coords_bohr, dtype=float), used, hessian))
+        return hessian, used
+
+
+def analyse(hessians, masses_amu, coords_bohr, dihedral_atoms, temperatures_k, freeze_torsion=False,
             moving_atoms=None):
-    """Vibrations of one structure (gradient_of(coords) -> Hartree/Bohr); freeze_torsion projects the
+    """Vibrations of one structure (hessians: a Hessians of the engine); freeze_torsion projects the
     dihedral out (a constrained point). The other-modes corrections leave out the internal rotation
     of moving_atoms about the bond (the hindered rotor's own motion; the frozen dihedral if not given)."""
-    coords = np.asarray(coords_bohr, dtype=float).reshape(-1, 3)
-    hessian = finite_difference_hessian(gradient_of, coords)
+    hessian, coords = hessians(np.asarray(coords_bohr, dtype=float).reshape(-1, 3))
+    coords_bohr = coords
     torsion = [geometry.dihedral_gradient(coords, *dihedral_atoms).ravel()]
     frequencies, _ = harmonic_frequencies(hessian, masses_amu, coords, torsion if freeze_torsion else None)
     frozen = frequencies if freeze_torsion else harmonic_frequencies(hessian, masses_amu, coords, torsion)[0]
@@ -98,13 +123,13 @@ def _with_vibrations(records, analysed):
     )
 
 
-def _analyse_all(records, gradient_of, masses, atoms, temperatures, symmetric, moving):
+def _analyse_all(records, hessians, masses, atoms, temperatures, symmetric, moving):
     """Vibrations of each record; a mirror-image record (symmetric profile) reuses its partner's."""
     done, results = {}, []
     for record in records:
         key = round(abs(record.angle_deg), 1) if symmetric else round(record.angle_deg, 1)
         if key not in done:
-            done[key] = analyse(gradient_of, masses, record.coords_bohr, atoms, temperatures, moving_atoms=moving)
+            done[key] = analyse(hessians, masses, record.coords_bohr, atoms, temperatures, moving_atoms=moving)
         results.append(done[key])
     return results
 
@@ -138,21 +163,29 @@ def add_free_energies(profile, dihedral_atoms, symmetric, relaxer, masses_amu, s
                       moving_atoms=None):
     """The ProfileAnalysis with vibrations at its minima and maxima, RRHO populations and, when
     planar_scis_start (coords, hessian) is given (dienes), the planar s-cis record and readiness."""
-    gradient_of, atoms, temperatures = relaxer.gradient, dihedral_atoms, settings.temperatures_k
-    minima = _with_vibrations(profile.minima, _analyse_all(profile.minima, gradient_of, masses_amu, atoms,
+    hessians, atoms, temperatures = Hessians(relaxer.gradient, masses_amu), dihedral_atoms, settings.temperatures_k
+    minima = _with_vibrations(profile.minima, _analyse_all(profile.minima, hessians, masses_amu, atoms,
                                                            temperatures, symmetric, moving_atoms))
-    maxima = _with_vibrations(profile.maxima, _analyse_all(profile.maxima, gradient_of, masses_amu, atoms,
+    maxima = _with_vibrations(profile.maxima, _analyse_all(profile.maxima, hessians, masses_amu, atoms,
                                                            temperatures, symmetric, moving_atoms))
     update = dict(minima=minima, maxima=maxima, rrho_populations=rrho_populations(minima, temperatures))
     if planar_scis_start is not None and minima:
-        coords, hessian = planar_scis_start
-        result = relaxer.relax(coords, settings.refine_convergence, hessian, [DihedralConstraint(atoms, 0.0)])
-        if not np.isfinite(result.energy):
-            raise CalculationError("the planar s-cis structure could not be optimised")
-        vib = analyse(gradient_of, masses_amu, result.x.reshape(-1, 3), atoms, temperatures, freeze_torsion=True)
+        # a converged stationary point at 0 deg already is the planar s-cis structure: its Hessian serves
+        at_zero = next((r for r in (*profile.minima, *profile.maxima) if abs(r.angle_deg) < PLANAR_DEG
+                        and r.converged and r.coords_bohr is not None), None)
+        if at_zero is not None:
+            energy, coords, converged = at_zero.energy_hartree, at_zero.coords_bohr, True
+            how = f"the {at_zero.kind} at 0 deg, torsion frozen in the frequencies"
+        else:
+            start, hessian = planar_scis_start
+            result = relaxer.relax(start, settings.refine_convergence, hessian, [DihedralConstraint(atoms, 0.0)])
+            if not np.isfinite(result.energy):
+                raise CalculationError("the planar s-cis structure could not be optimised")
+            energy, coords, converged = result.energy, result.x.reshape(-1, 3), result.converged
+            how = "constrained at 0 deg, torsion frozen in the frequencies"
+        vib = analyse(hessians, masses_amu, coords, atoms, temperatures, freeze_torsion=True)
         planar = StationaryRecord(
-            "planar s-cis", 0.0, 0.0, result.energy, "constrained at 0 deg, torsion frozen in the frequencies",
-            result.converged, result.x.reshape(-1, 3), frequencies_cm1=vib.frequencies_cm1,
+            "planar s-cis", 0.0, 0.0, energy, how, converged, coords, frequencies_cm1=vib.frequencies_cm1,
             imaginary_count=vib.imaginary_count, imaginary_along_torsion=vib.imaginary_along_torsion,
             gibbs_corrections_kcal_mol=vib.gibbs_corrections_kcal_mol,
         )

@@ -1,0 +1,65 @@
+"""Symmetry-equivalent finite-difference displacements: the Hessian built from one displacement
+per class equals the full central-difference Hessian, at a fraction of the gradients."""
+
+import numpy as np
+import pytest
+
+import torsionscan
+from torsionscan.engines.model import ModelEngine
+from torsionscan.freeenergy import FD_STEP_BOHR, finite_difference_hessian
+from torsionscan.molecule import find_conjugated_bonds, load_molecule
+from torsionscan.profile import FourierSeries
+from torsionscan.rrho import harmonic_frequencies
+from torsionscan.symmetry import find_group, symmetric_hessian
+
+
+@pytest.fixture(scope="module")
+def butadiene_model():
+    molecule = load_molecule("C=CC=C")
+    atoms = find_conjugated_bonds(molecule)[0].atoms
+    engine = ModelEngine(molecule.mol, [(atoms, FourierSeries(0.0, (1.0, -1.5, 1.2), (0.0, 0.0, 0.0)))])
+    result = torsionscan.scan("C=CC=C", engine=engine, settings=torsionscan.ScanSettings(conformers=1, frequencies=False))
+    masses = np.array([a.GetMass() for a in molecule.mol.GetAtoms()])
+    return molecule, engine, result.bonds[0].profile, masses
+
+
+def _gradient(engine):
+    return lambda coords: engine.energy_and_gradient(coords)[1]
+
+
+def test_a_planar_s_trans_structure_has_the_four_operations_of_c2h(butadiene_model):
+    molecule, _, profile, masses = butadiene_model
+    trans = next(m for m in profile.minima if abs(m.angle_deg) > 170)
+    _, _, operations, symmetric = find_group(molecule.numbers, masses, trans.coords_bohr)
+    assert len(operations) == 4  # E, C2, sigma_h, i
+    assert np.abs(symmetric - (trans.coords_bohr - masses @ trans.coords_bohr / masses.sum()) @ find_group(
+        molecule.numbers, masses, trans.coords_bohr)[1]).max() < 0.02
+
+
+def test_the_symmetric_hessian_equals_the_full_one_with_fewer_gradients(butadiene_model):
+    molecule, engine, profile, masses = butadiene_model
+    counts = {}
+    for record in (*profile.minima, *profile.maxima):
+        hessian, coords, used = symmetric_hessian(_gradient(engine), molecule.numbers, masses, record.coords_bohr,
+                                                  FD_STEP_BOHR)
+        full = finite_difference_hessian(_gradient(engine), coords)
+        # the two differ only by the central-difference truncation error, O(h^2), in two frames
+        assert np.abs(hessian - full).max() < 1e-5
+        # vibrations above 100 cm-1 (the model's soft torsion and the rigid-body residue left out)
+        ours, theirs = harmonic_frequencies(hessian, masses, coords)[0], harmonic_frequencies(full, masses, coords)[0]
+        assert np.allclose(ours[ours > 100], theirs[theirs > 100], atol=0.05)
+        counts[round(record.angle_deg)] = used
+    # 6N = 60 displacements: C2h (s-trans, 180 deg) and C2v (planar s-cis, 0 deg) need 25, C2 (twisted) 30
+    assert counts[180] == 25 and counts[0] == 25
+    assert all(used == 30 for angle, used in counts.items() if angle not in (0, 180))
+
+
+def test_a_structure_without_symmetry_uses_every_displacement(butadiene_model):
+    molecule, engine, profile, masses = butadiene_model
+    rng = np.random.default_rng(7)
+    coords = profile.minima[0].coords_bohr + rng.normal(scale=0.1, size=profile.minima[0].coords_bohr.shape)
+    _, _, operations, _ = find_group(molecule.numbers, masses, coords)
+    assert len(operations) == 1
+    hessian, used_coords, used = symmetric_hessian(_gradient(engine), molecule.numbers, masses, coords, FD_STEP_BOHR)
+    assert used == 60 and np.array_equal(used_coords, coords)
+    assert np.abs(hessian - finite_difference_hessian(_gradient(engine), coords)).max() < 1e-9
