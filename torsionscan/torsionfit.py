@@ -75,36 +75,39 @@ def fit_joint_terms(angle_lists, target_lists, max_periodicity=DEFAULT_MAX_PERIO
                     weight_lists=None, ridge=RIDGE):
     """Least-squares terms n = 1..max_periodicity shared by every profile p: target_p(phi) ~ c_p + sum of
     terms, one free constant c_p per profile. Weights per point (default 1); the ridge penalty is
-    relative to the summed weights of all profiles and applies to the shared coefficients only."""
+    relative to the summed weights of all profiles and applies to the shared coefficients only.
+
+    The constants carry no penalty, so each is the weighted mean of its profile's misfit: solving for
+    the shared coefficients on profiles centred by their weighted means is the same least-squares
+    problem without one column per profile (which keeps many profiles and leave-one-out refits cheap).
+    """
     if not 1 <= max_periodicity <= MAX_PERIODICITY:
         raise ValueError(f"periodicities go from 1 to at most {MAX_PERIODICITY}, got {max_periodicity}")
     if not angle_lists or len(angle_lists) != len(target_lists):
         raise ValueError("give one target list per angle list, at least one profile")
-    phis = [np.radians(np.asarray(a, dtype=float)) for a in angle_lists]
-    targets = [np.asarray(t, dtype=float) for t in target_lists]
-    if weight_lists is None:
-        weights = [np.ones_like(phi) for phi in phis]
-    else:
-        weights = [np.asarray(w, dtype=float) for w in weight_lists]
     n = np.arange(1, max_periodicity + 1)
-    profiles = len(phis)
-    blocks = []
-    for p, phi in enumerate(phis):
-        offsets = np.zeros((len(phi), profiles))
-        offsets[:, p] = 1.0
-        columns = [np.cos(np.outer(phi, n))]
+    designs, centred_designs, centred_targets, means, weights = [], [], [], [], []
+    for p, (angles, target) in enumerate(zip(angle_lists, target_lists)):
+        phi = np.radians(np.asarray(angles, dtype=float))
+        target = np.asarray(target, dtype=float)
+        w = np.ones_like(phi) if weight_lists is None else np.asarray(weight_lists[p], dtype=float)
+        design = np.cos(np.outer(phi, n))
         if free_phases:
-            columns.append(np.sin(np.outer(phi, n)))
-        blocks.append(np.hstack([offsets, *columns]))
-    design = np.vstack(blocks)
+            design = np.hstack([design, np.sin(np.outer(phi, n))])
+        design_mean, target_mean = w @ design / w.sum(), w @ target / w.sum()
+        designs.append(design)
+        centred_designs.append(design - design_mean)
+        centred_targets.append(target - target_mean)
+        means.append((design_mean, target_mean))
+        weights.append(w)
     w = np.concatenate(weights)
     root_w = np.sqrt(w)
-    penalty = math.sqrt(ridge * w.sum()) * np.eye(design.shape[1])[profiles:]
-    system = np.vstack([design * root_w[:, None], penalty])
-    rhs = np.concatenate([np.concatenate(targets) * root_w, np.zeros(len(penalty))])
+    columns = centred_designs[0].shape[1]
+    system = np.vstack([np.vstack(centred_designs) * root_w[:, None], math.sqrt(ridge * w.sum()) * np.eye(columns)])
+    rhs = np.concatenate([np.concatenate(centred_targets) * root_w, np.zeros(columns)])
     coefficients, *_ = np.linalg.lstsq(system, rhs, rcond=None)
-    cos_part = coefficients[profiles:profiles + max_periodicity]
-    sin_part = coefficients[profiles + max_periodicity:] if free_phases else np.zeros(max_periodicity)
+    cos_part = coefficients[:max_periodicity]
+    sin_part = coefficients[max_periodicity:] if free_phases else np.zeros(max_periodicity)
     terms = []
     for periodicity, a, b in zip(n, cos_part, sin_part):
         k = math.hypot(a, b)
@@ -114,9 +117,9 @@ def fit_joint_terms(angle_lists, target_lists, max_periodicity=DEFAULT_MAX_PERIO
         terms.append(TorsionTerm(int(periodicity), phase, k if k > _ZERO_K else 0.0))
     terms = tuple(terms)
     total_k = sum(t.k_kcal_mol for t in terms)
-    constants = tuple(float(c) - total_k for c in coefficients[:profiles])
-    rmse = tuple(float(np.sqrt(np.mean((target - c - term_energy(terms, np.degrees(phi))) ** 2)))
-                 for target, c, phi in zip(targets, constants, phis))
+    constants = tuple(float(target_mean - design_mean @ coefficients) - total_k for design_mean, target_mean in means)
+    rmse = tuple(float(np.sqrt(np.mean((target - design @ coefficients) ** 2)))
+                 for design, target in zip(centred_designs, centred_targets))
     return JointFit(terms, constants, rmse)
 
 
