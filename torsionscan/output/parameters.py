@@ -40,7 +40,7 @@ import matplotlib.pyplot as plt
 from ..errors import InputError
 from ..records import to_plain
 from ..units import KCAL_KJ
-from . import atomic_write, bond_stem
+from . import atomic_write, bond_stem, check_output_folder, storage_error
 from .forcefield import openmm_force_xml
 from .report import write_table_csv
 
@@ -264,6 +264,7 @@ def write_parameter_set(parameters, out_dir, formats=FORMATS):
     per-bond OpenMM forces into out_dir (created); returns the paths written by kind."""
     check_types(parameters, formats)
     out_dir = Path(out_dir)
+    check_output_folder(out_dir)
     written = {}
 
     def table(name, columns, rows):
@@ -297,8 +298,6 @@ def write_parameter_set(parameters, out_dir, formats=FORMATS):
         try:
             forces.mkdir(exist_ok=True)
         except OSError as error:
-            from . import storage_error
-
             raise storage_error(forces, error) from None
         paths = []
         for fit in parameters.types:
