@@ -292,3 +292,23 @@ def test_fit_set_for_a_100_compound_run_takes_seconds(scans, tmp_path):
     elapsed = time.perf_counter() - started
     assert len(parameters.types[0].members) == 136 and parameters.types[0].molecule_count == 102
     assert elapsed < 20.0, elapsed
+
+
+def test_fit_set_in_a_real_subprocess(truth_run, tmp_path):
+    import subprocess
+    import sys
+
+    run, _ = truth_run
+    out = tmp_path / "sub"
+    done = subprocess.run([sys.executable, "-m", "torsionscan.cli", "fit-set", str(run), "--out", str(out),
+                           "--formats", "gromacs"], capture_output=True, text=True, timeout=120)
+    assert done.returncode == 0, done.stderr
+    assert "2-2-2-2" in done.stdout and (out / "torsions_gromacs.itp").is_file()
+    assert [line for line in done.stderr.splitlines() if line.strip()] == [
+        "torsionscan: WARNING: 1 type(s) with one molecule only, fitted without a transfer check (add molecules "
+        "with these types to check them): 2-2-3-7"]
+    bad = subprocess.run([sys.executable, "-m", "torsionscan.cli", "fit-set", str(run), "--formats", "lammps"],
+                         capture_output=True, text=True, timeout=120)
+    assert bad.returncode == 2
+    assert bad.stderr.strip().splitlines() == [
+        "torsionscan: error: --formats lammps: unknown format; choose from amber, gromacs, charmm, openmm"]
