@@ -377,3 +377,41 @@ def test_an_outcome_the_store_cannot_read_fails_that_compound_only(tmp_path, mod
         record = store.compound("butadiene")
         assert record["status"] == "failed" and record["reason"].startswith("could not store the result: InputError")
     assert not (out / "compounds" / "butadiene").exists()
+
+
+def test_the_worker_fits_torsion_terms_and_the_folder_gets_the_fit_files(tmp_path, model_scan, monkeypatch):
+    from torsionscan.records import ScanResult, to_plain
+    from torsionscan.store import compound_folder
+
+    monkeypatch.setattr(driver, "scan", lambda *args, **kwargs: model_scan)
+    with RunStore(tmp_path / "run") as store:
+        store.add_compounds([CompoundEntry(name="butadiene", where="line 2", smiles="C=CC=C")])
+        job = make_job(store.compound("butadiene"), FAST_SETTINGS, BatchOptions(fit_for="mmff94"), tmp_path / "run")
+        outcome = scan_compound(job)
+        assert (outcome["status"], outcome["rescore_failure"]) == ("done", "")
+        fit = ScanResult.from_dict(outcome["result"]).bonds[0].torsion_fit
+        assert fit is not None and fit.mm_model.startswith("MMFF94") and fit.terms
+        session = store.start_session("batch", 1, None)
+        store_outcome(store, outcome, session, tmp_path / "run")
+        stored = store.result("butadiene").bonds[0].torsion_fit
+    assert to_plain(stored) == to_plain(fit)
+    files = {p.name for p in compound_folder(tmp_path / "run", "butadiene").iterdir()}
+    assert any("torsion" in name or "fit" in name for name in files), files
+
+
+def test_a_refining_worker_keeps_its_finished_optimisations_in_the_run_folder(tmp_path, model_scan, monkeypatch):
+    import torsionscan.workflows as workflows
+
+    monkeypatch.setattr(driver, "scan", lambda *args, **kwargs: model_scan)
+    seen = []
+
+    def fake(result, level, points_mode, reference=None, processes=None, threads=None, cache=None):
+        seen.append(cache.path)
+        return result
+
+    monkeypatch.setattr(workflows, "refine_with_dft", fake)
+    with RunStore(tmp_path / "run") as store:
+        store.add_compounds([CompoundEntry(name="butadiene", where="line 2", smiles="C=CC=C")])
+        job = make_job(store.compound("butadiene"), FAST_SETTINGS, BatchOptions(refine="cheap"), tmp_path / "run")
+    assert scan_compound(job)["status"] == "done"
+    assert seen == [tmp_path / "run" / "refinement_points.sqlite"]

@@ -255,8 +255,6 @@ def test_structure_file_column_reads_files_beside_the_list(tmp_path):
 
 
 def test_structure_file_outside_the_list_folder_is_refused_unless_allowed(tmp_path):
-    from torsionscan.compounds import list_policy
-
     _acrolein_files(tmp_path)
     folder = tmp_path / "lists"
     folder.mkdir()
@@ -267,10 +265,6 @@ def test_structure_file_outside_the_list_folder_is_refused_unless_allowed(tmp_pa
         assert "outside the list's folder" in entry.problem and "--allow-outside-files" in entry.problem
         assert entry.molblock == ""
     assert all(not e.problem and e.molblock for e in read_compound_list(path, allow_outside_files=True))
-    with list_policy(allow_outside_files=True):
-        assert all(not e.problem for e in read_compound_list(path))
-        assert all(e.problem for e in read_compound_list(path, allow_outside_files=False))
-    assert all(e.problem for e in read_compound_list(path))  # the permission ends with the block
 
 
 def test_smiles_cells_are_never_read_as_files(tmp_path):

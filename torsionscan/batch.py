@@ -27,7 +27,9 @@ from .threads import THREAD_VARIABLES, usable_cores
 from .compounds import read_compound_list
 from .engines import resolve_backend
 from .errors import CalculationError, InputError, StorageError, TimeLimitExceeded, TorsionScanError
-from .records import ScanResult
+from .records import FitOptions, ScanResult
+from .relaxcache import FILE_NAME as CHECKPOINT_FILE
+from .relaxcache import RelaxationCache
 from .store import RunStore, compound_folder
 
 log = logging.getLogger(__name__)
@@ -51,6 +53,10 @@ class BatchOptions:
     refine: str | None = None  # DFT level to re-optimise every scan at (workflows.refine_with_dft)
     refine_points: str = "all"  # "all" grid points or only the "stationary" ones
     cluster_worker_wait_s: float = CLUSTER_WORKER_WAIT_S  # give up when a Dask scheduler has no worker this long
+    fit_for: str | None = None  # "mmff94": fit torsion terms for every scanned bond inside the workers
+    fit_options: FitOptions = FitOptions()
+    allow_outside_files: bool = False  # structure_file entries outside the list's folder
+    allow_large: bool = False  # molecules above molecule.MAX_ATOMS atoms
 
     def check(self):
         if self.workers is not None and self.workers < 1:
@@ -59,6 +65,9 @@ class BatchOptions:
             raise InputError("--threads-per-worker must be at least 1")
         if self.timeout_per_compound_s is not None and not self.timeout_per_compound_s > 0:
             raise InputError("--timeout-per-compound must be a positive number of seconds")
+        if self.fit_for not in (None, "mmff94"):
+            raise InputError(f"--fit-for {self.fit_for!r}: the built-in force field is mmff94")
+        self.fit_options.check()
 
 
 @dataclass(frozen=True)
@@ -106,6 +115,9 @@ def scan_compound(job):
         if job.get("refine"):
             result, refine_failure = _refined(result, job)
             rescore_failure = "; ".join(r for r in (rescore_failure, refine_failure) if r)
+        if job.get("fit_for"):
+            result, fit_failure = _fitted(result, job)
+            rescore_failure = "; ".join(r for r in (rescore_failure, fit_failure) if r)
         plain = result.to_dict()
         json.dumps(plain, allow_nan=False)  # a value the store cannot hold fails this compound, here
         # drawing here keeps the single writing process free to take the next outcome
@@ -137,18 +149,37 @@ def _refined(result, job):
     from .rescore import parse_level
     from .workflows import refine_with_dft
 
+    cache = RelaxationCache(job["checkpoint"]) if job.get("checkpoint") else None
     try:
         return refine_with_dft(result, parse_level(job["refine"]), job["refine_points"], processes=1,
-                               threads=job["threads"]), ""
+                               threads=job["threads"], cache=cache), ""
     except (TorsionScanError, ValueError) as error:  # keep the finished scan; say why the refinement is missing
         return result, f"refinement at {job['refine']} failed: {error}"
 
 
-def make_job(record, settings, options):
-    """The picklable work item of one compound (record: RunStore.compound)."""
+def _fitted(result, job):
+    """(result with a torsion-term fit against MMFF94 on every scanned bond, "") or, for a bond that
+    cannot be fitted, (the result with the other bonds' fits, reason)."""
+    from .forcefield import fit_torsion
+
+    bonds, reasons = [], []
+    for bond in result.bonds:
+        try:
+            bonds.append(replace(bond, torsion_fit=fit_torsion(result, bond, job["fit_options"])))
+        except (TorsionScanError, ValueError) as error:
+            bonds.append(bond)
+            reasons.append(f"torsion fit of bond {bond.label} failed: {error}")
+    return replace(result, bonds=tuple(bonds)), "; ".join(reasons)
+
+
+def make_job(record, settings, options, out_dir=None):
+    """The picklable work item of one compound (record: RunStore.compound); refinements keep their
+    finished optimisations in out_dir's checkpoint file."""
+    checkpoint = str(Path(out_dir) / CHECKPOINT_FILE) if options.refine and out_dir is not None else None
     return {"name": record["name"], "input": record["input"], "settings": settings,
             "time_limit_s": options.timeout_per_compound_s, "rescore": options.rescore,
-            "refine": options.refine, "refine_points": options.refine_points, "threads": options.threads_per_worker}
+            "refine": options.refine, "refine_points": options.refine_points, "threads": options.threads_per_worker,
+            "checkpoint": checkpoint, "fit_for": options.fit_for, "fit_options": options.fit_options}
 
 
 class _Interrupts:
@@ -505,7 +536,8 @@ def run_batch(list_path, out_dir, settings, options=BatchOptions(), progress=Non
     settings = replace(settings, engine=resolve_backend(settings.engine, settings.solvent, settings.solvation_model))
     if options.cluster and (options.workers or options.threads_per_worker != 1):
         log.warning("--workers and --threads-per-worker apply to local workers; the Dask workers keep their own")
-    entries = read_compound_list(list_path)
+    entries = read_compound_list(list_path, allow_outside_files=options.allow_outside_files,
+                                 allow_large=options.allow_large)
     for entry in entries:
         if entry.note:
             log.warning("%s (%s): %s", list_path, entry.where, entry.note)
@@ -526,7 +558,7 @@ def run_batch(list_path, out_dir, settings, options=BatchOptions(), progress=Non
         store.add_compounds(entries)
         todo = store.names("pending") + (store.names("failed") if options.retry_failed else [])
         listed = {entry.name for entry in entries if not entry.problem}
-        jobs = [make_job(store.compound(name), settings, options) for name in todo if name in listed]
+        jobs = [make_job(store.compound(name), settings, options, out_dir) for name in todo if name in listed]
         workers = options.workers or usable_cores()
         session = store.start_session(command, None if options.cluster else workers, options.cluster)
         note = getattr(progress, "note", None) or log.warning

@@ -8,16 +8,13 @@ A table's `smiles` cell is only ever read as SMILES, never as a file name. A str
 file comes through the `structure_file` column: a MOL/SDF (first record) or XYZ file, relative to
 the list's folder, and refused when it lies outside that folder (symbolic links followed) unless
 allowed. Molecules above molecule.MAX_ATOMS atoms are refused unless allowed. Both permissions are
-keyword arguments of read_compound_list; where a caller does not pass them, the values set by
-`list_policy(...)` around the call apply (default: neither allowed).
+keyword arguments of read_compound_list (default: neither allowed).
 
 Each entry gets a `name` that is unique within the list and whose folder name (safe_name,
 compared ignoring letter case) is unique too. Locations are 1-based: physical line numbers for
 text files (the header is line 1), record numbers for SDF.
 """
 
-import contextlib
-import contextvars
 import csv
 import hashlib
 import io
@@ -40,25 +37,6 @@ _KNOWN_FIELDS = {"smiles": "smiles", "name": "name", "bond": "bond", "charge": "
 _STRUCTURE_COLUMNS = ("smiles", "structure_file")  # SDF records: the record itself is the structure
 
 
-@dataclass(frozen=True)
-class ListPolicy:
-    """What reading a list may do beyond the safe default."""
-
-    allow_outside_files: bool = False  # structure_file entries outside the list's folder
-    allow_large: bool = False  # molecules above molecule.MAX_ATOMS atoms
-
-
-_POLICY = contextvars.ContextVar("torsionscan_list_policy", default=ListPolicy())
-
-
-@contextlib.contextmanager
-def list_policy(*, allow_outside_files=False, allow_large=False):
-    """Within this block, read_compound_list calls that do not pass these permissions use them."""
-    token = _POLICY.set(ListPolicy(bool(allow_outside_files), bool(allow_large)))
-    try:
-        yield
-    finally:
-        _POLICY.reset(token)
 _INTEGER = re.compile(r"[+-]?[0-9]+(?:\.0*)?")
 
 
@@ -126,17 +104,14 @@ class _Row:
         return f"{self.unit}-{self.number}"
 
 
-def read_compound_list(path, *, allow_outside_files=None, allow_large=None):
+def read_compound_list(path, *, allow_outside_files=False, allow_large=False):
     """Read a compound list: CSV with a header, .smi (SMILES then name), or multi-record SDF.
 
     The format follows the suffix: .csv (comma), .tsv (tab), .smi/.smiles, .sdf/.sd. Returns the
     entries in file order; entries that cannot be scanned have `problem` set.
     allow_outside_files: read structure_file entries outside the list's folder; allow_large:
-    accept molecules above molecule.MAX_ATOMS atoms. None = as list_policy sets (default False).
+    accept molecules above molecule.MAX_ATOMS atoms.
     """
-    policy = _POLICY.get()
-    allow_outside_files = policy.allow_outside_files if allow_outside_files is None else allow_outside_files
-    allow_large = policy.allow_large if allow_large is None else allow_large
     path = Path(path)
     if not path.exists():
         raise InputError(f"compound list {path} not found; check the path")
