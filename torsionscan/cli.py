@@ -86,6 +86,9 @@ def _add_batch_options(parser):
                         help="read structure_file entries that lie outside the list's folder")
     parser.add_argument("--allow-large", action="store_true",
                         help="scan molecules above the 300-atom limit too (hours to days per bond)")
+    parser.add_argument("--fit-for", choices=["mmff94"],
+                        help="fit torsion terms for every scanned bond inside the workers (see 'scan --fit-for')")
+    _add_fit_options(parser)
 
 
 def _add_refine_options(parser, level_option, required=False):
@@ -491,7 +494,8 @@ def _batch_options(args):
     return BatchOptions(
         workers=args.workers, threads_per_worker=args.threads_per_worker, cluster=args.cluster,
         retry_failed=args.retry_failed, timeout_per_compound_s=args.timeout_per_compound, rescore=args.rescore,
-        refine=args.refine, refine_points=args.refine_points,
+        refine=args.refine, refine_points=args.refine_points, fit_for=args.fit_for, fit_options=_fit_options(args),
+        allow_outside_files=args.allow_outside_files, allow_large=args.allow_large,
     )
 
 
@@ -516,15 +520,11 @@ def run_batch_command(args):
 
 
 def run_batch_checked(args):
-    """The batch's checks that need no list (settings, scheduler address, run folder), then the batch,
-    reading the list with the permissions the options give."""
-    from .compounds import list_policy
-
+    """The batch's checks that need no list (settings, scheduler address, run folder), then the batch."""
     _settings(args).check()
     _check_cluster_address(args.cluster)
     _check_output_folder(args.out or Path("results") / args.list.stem)
-    with list_policy(allow_outside_files=args.allow_outside_files, allow_large=args.allow_large):
-        return run_batch_command(args)
+    return run_batch_command(args)
 
 
 def run_report(args):
