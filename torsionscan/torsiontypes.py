@@ -188,7 +188,10 @@ def collect_members(results, typing=MMFF94_TYPING, quantum="gfn"):
             try:
                 residual = bond_residual(result, bond, quantum)
             except InputError as error:
-                left_out.append((name, bond.label, str(error)))
+                reason = str(error)
+                if reason.startswith("MMFF94 cannot"):  # the advice of the per-bond fit does not apply here
+                    reason = "MMFF94 cannot type or parameterise this molecule"
+                left_out.append((name, bond.label, reason))
                 continue
             if typing == MMFF94_TYPING:
                 label, classes, definition, reverse = mmff94_type(residual.mmff_types)

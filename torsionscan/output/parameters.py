@@ -207,7 +207,7 @@ def member_rows(parameters):
 
 def type_figure(fit):
     """Every member's quantum profile (markers) with the fitted model (line) in the same colour."""
-    fig, ax = plt.subplots(figsize=(8.0, 5.5), dpi=110)
+    fig, ax = plt.subplots(figsize=(10.0, 5.5), dpi=110)
     colours = plt.get_cmap("tab10" if len(fit.members) <= 10 else "tab20")
     for n, m in enumerate(fit.members):
         colour = colours(n % colours.N)
@@ -221,8 +221,9 @@ def type_figure(fit):
     ax.set_title(f"type {fit.label} ({' '.join(fit.classes)}): quantum (markers) and MM with the fitted terms (lines)\n"
                  f"RMSE fit {fit.rmse_fit_kcal_mol:.2f}, leave-one-out {leave_out}, MMFF94 as is "
                  f"{fit.rmse_mm_kcal_mol:.2f} kcal/mol", fontsize=9)
-    if len(fit.members) <= 20:
-        ax.legend(fontsize=7, frameon=False, ncol=2)
+    if len(fit.members) <= 30:
+        ax.legend(fontsize=7, frameon=False, loc="upper left", bbox_to_anchor=(1.01, 1.0),
+                  ncol=1 if len(fit.members) <= 15 else 2)
     fig.tight_layout()
     return fig
 
