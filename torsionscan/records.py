@@ -21,6 +21,7 @@ from rdkit import Chem
 from .errors import InputError
 from .mm import Quartet
 from .profile import FourierFit
+from .quality import bond_flags, flag_details
 from .reference import ReferenceEnergy
 from .rotor import ConformerFreeEnergies, RotorPopulations, WellFundamental
 from .settings import ScanSettings
@@ -467,6 +468,77 @@ class BondScan:
         return f"{self.dihedral_atoms[1] + 1}-{self.dihedral_atoms[2] + 1}"
 
     @property
+    def dihedral_atom_numbers(self):
+        """The dihedral's atoms i, j, k, l as 1-based atom numbers (dihedral_atoms holds 0-based indices)."""
+        return tuple(int(a) + 1 for a in self.dihedral_atoms)
+
+    @property
+    def flags(self):
+        """Names of the raised quality flags (quality.FLAG_MEANINGS), () when none."""
+        return bond_flags(self)
+
+    @property
+    def flag_details(self):
+        """[(flag, what was found)] of the raised quality flags."""
+        return flag_details(self)
+
+    def relative_kcal_mol(self, record):
+        """A ScanPoint's or StationaryRecord's energy relative to the profile's zero, kcal/mol."""
+        return self.profile.relative_kcal_mol(record.energy_hartree)
+
+    def points_table(self):
+        """One plain row per point of the full circle (mirror images included): angle_deg,
+        energy_kcal_mol (relative to the profile's zero), energy_hartree, converged, mirrored."""
+        return [{"bond": self.label, "angle_deg": p.angle_deg, "energy_kcal_mol": self.relative_kcal_mol(p),
+                 "energy_hartree": p.energy_hartree, "converged": p.converged, "mirrored": p.mirrored}
+                for p in self.points]
+
+    def stationary_table(self):
+        """One plain row per minimum and barrier top (and the planar s-cis structure when computed):
+        kind, angle_deg, energy_kcal_mol (relative), energy_hartree, imaginary_count, converged."""
+        records = [*self.profile.minima, *self.profile.maxima]
+        if self.profile.planar_scis is not None:
+            records.append(self.profile.planar_scis)
+        return [{"bond": self.label, "kind": m.kind, "angle_deg": m.angle_deg,
+                 "energy_kcal_mol": self.relative_kcal_mol(m), "energy_hartree": m.energy_hartree,
+                 "imaginary_count": m.imaginary_count, "converged": m.converged}
+                for m in sorted(records, key=lambda m: m.angle_deg)]
+
+    def summary_row(self):
+        """The bond's answer as one plain row (full precision): atoms (1-based), global minimum,
+        barrier into the other region, per temperature the leading s-cis share in percent and
+        ΔG(s-cis − s-trans), the planar s-cis cost of a diene, the population model and the flags.
+        A symmetric rotor has no s-cis values (None)."""
+        profile = self.profile
+        lowest = profile.lowest_minimum()
+        row = {"bond": self.label, "dihedral_atoms": "-".join(str(n) for n in self.dihedral_atom_numbers),
+               "global_min_deg": None if lowest is None else lowest.angle_deg,
+               "barrier_kcal_mol": None if self.symmetric_rotor else profile.barrier_to_other_region(),
+               "symmetric_rotor": self.symmetric_rotor}
+        leading = () if self.symmetric_rotor else profile.leading_populations()
+        for p in leading:
+            row[f"s_cis_pct_{p.temperature_k:g}K"] = 100.0 * p.s_cis
+            row[f"dG_scis_minus_strans_{p.temperature_k:g}K_kcal_mol"] = p.delta_g_kcal_mol
+        for r in () if self.symmetric_rotor else profile.readiness:
+            row[f"dG_to_planar_scis_{r.temperature_k:g}K_kcal_mol"] = r.delta_g_kcal_mol
+        row["population_model"] = profile.population_model if leading else None
+        row["flags"] = ", ".join(self.flags)
+        return row
+
+    def __repr__(self):
+        row = self.summary_row()
+        shares = [f"s-cis {v:.1f}% at {k[len('s_cis_pct_'):-1]} K" for k, v in row.items()
+                  if k.startswith("s_cis_pct_")]
+        barrier = row["barrier_kcal_mol"]
+        parts = [f"bond {self.label} (atoms {row['dihedral_atoms']})", *shares[:1]]
+        if barrier is not None:
+            parts.append(f"barrier {barrier:.2f} kcal/mol")
+        if self.symmetric_rotor:
+            parts.append("symmetric rotor")
+        parts.append(f"flags: {row['flags'] or 'none'}")
+        return f"<BondScan {', '.join(parts)}>"
+
+    @property
     def relaxed_points(self):
         """Computed (not mirrored) points with an energy: the frames of the bond's XYZ file, in order."""
         return tuple(p for p in self.points if not p.mirrored and math.isfinite(p.energy_hartree))
@@ -513,6 +585,33 @@ class ScanResult:
                 return bond
         scanned = ", ".join(b.label for b in self.bonds) or "none"
         raise InputError(f"{self.name} has no scan of bond {label}; it holds {scanned}")
+
+    def table(self, kind="bonds"):
+        """Plain rows (dicts) for a notebook: kind "bonds" one row per scanned bond
+        (BondScan.summary_row, with the compound's name), "points" one per scan point,
+        "stationary" one per stationary point; energies relative in kcal/mol, atoms 1-based."""
+        makers = {"bonds": lambda b: [b.summary_row()], "points": BondScan.points_table,
+                  "stationary": BondScan.stationary_table}
+        if kind not in makers:
+            raise InputError(f"no table {kind!r}: choose one of {', '.join(makers)}")
+        return [{"name": self.name, **row} for bond in self.bonds for row in makers[kind](bond)]
+
+    def to_dataframe(self, kind="bonds"):
+        """table(kind) as a pandas DataFrame (needs pandas: pip install "torsionscan[notebook]")."""
+        try:
+            import pandas
+        except ImportError:
+            raise InputError('to_dataframe needs pandas: pip install pandas (or "torsionscan[notebook]"); '
+                             "table() gives the same rows without it") from None
+        return pandas.DataFrame(self.table(kind))
+
+    def __repr__(self):
+        lines = [f"<ScanResult {self.name} {self.smiles}: {self.method} via {self.engine}, "
+                 f"{len(self.bonds)} bond{'' if len(self.bonds) == 1 else 's'} scanned"
+                 + (f", {len(self.failed_bonds)} failed" if self.failed_bonds else "")]
+        lines += [f"  {bond!r}" for bond in self.bonds]
+        lines += [f"  bond {label} failed: {reason}" for label, reason in self.failed_bonds]
+        return "\n".join(lines) + ">"
 
     def to_dict(self):
         """The summary: schema header plus every field at full precision (JSON-ready)."""
