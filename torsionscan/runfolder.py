@@ -1,14 +1,14 @@
 """The run-level outputs of a batch, rebuilt from its database alone: the results table (CSV),
 an overview figure, every compound's folder and a self-contained HTML report."""
 
-import csv
 from pathlib import Path
 
 import matplotlib.pyplot as plt
 
 from .output import STRUCTURE_NAME, atomic_write, bond_stem, figure_bytes, write_results
 from .output.html import html_report
-from .output.report import compound_card, compound_rows, overview_figure, table_columns
+from .output.report import compound_card, compound_rows, overview_figure, report_columns, table_columns, write_table_csv
+from .output.viewer import viewer_data
 from .store import RunStore, compound_folder, utc_now
 
 TABLE_NAME = "scan_table.csv"
@@ -21,11 +21,21 @@ def _distinct(values):
     return list(dict.fromkeys(values))
 
 
+class RunReport(tuple):
+    """(path of the HTML report, number of table rows); .flagged: [(name, bond, flags text)] of the
+    table rows with a quality flag other than "symmetric rotor"."""
+
+    def __new__(cls, report, count, flagged):
+        made = super().__new__(cls, (report, count))
+        made.flagged = flagged
+        return made
+
+
 def write_run_report(out_dir, rebuild_folders=False):
     """Write the table, overview and HTML report of a run folder from its database.
 
     rebuild_folders: rewrite every done compound's folder too (else only incomplete folders are
-    written). Returns (path of the HTML report, number of table rows).
+    written). Returns a RunReport: (path of the HTML report, number of table rows) with .flagged.
     """
     out_dir = Path(out_dir)
     with RunStore(out_dir, create=False) as store:
@@ -35,7 +45,7 @@ def write_run_report(out_dir, rebuild_folders=False):
         results = {r["name"]: store.result(r["name"]) for r in records if r["status"] == "done"}
         counts = store.counts()
     extra = [key for r in records for key in r["extra"]]
-    rows, plots, cards = [], {}, {}
+    rows, plots, cards, viewers = [], {}, {}, {}
     for record in records:
         result = results.get(record["name"])
         rows += compound_rows(record, result)
@@ -49,16 +59,19 @@ def write_run_report(out_dir, rebuild_folders=False):
         if rebuild_folders or not complete:
             write_results(result, folder)
         plots[record["name"]] = [(bond.label, image.read_bytes()) for bond, image in zip(result.bonds, images)]
+        populations = {bond.label: folder / f"{bond_stem(bond.label)}_populations.png" for bond in result.bonds}
         cards[record["name"]] = {**compound_card(result), "drawing_svg": drawing_svg.read_bytes(),
-                                 "drawing_png": drawing_png.read_bytes() if drawing_png.is_file() else None}
+                                 "drawing_png": drawing_png.read_bytes() if drawing_png.is_file() else None,
+                                 "populations": {label: path.read_bytes() for label, path in populations.items()
+                                                 if path.is_file()}}
+        views = [viewer_data(result, bond) for bond in result.bonds]
+        viewers[record["name"]] = [v for v in views if v is not None]
 
     columns = table_columns(settings["temperatures_k"], _distinct(extra))
 
     def write_table(path):
         with path.open("w", newline="") as handle:
-            writer = csv.DictWriter(handle, fieldnames=columns, extrasaction="ignore")
-            writer.writeheader()
-            writer.writerows(rows)
+            write_table_csv(handle, columns, rows)
 
     atomic_write(out_dir / TABLE_NAME, write_table)
     method = ", ".join(_distinct(r.method for r in results.values())) or settings["method"]
@@ -76,8 +89,14 @@ def write_run_report(out_dir, rebuild_folders=False):
     caution = " ".join(_distinct(r.caution for r in results.values())) or NO_RESULT_CAUTION
     page = html_report(
         title=f"Torsion scans: {out_dir.name}", run_info=run_info, settings=settings, caution=caution,
-        columns=columns, rows=rows, plots=plots, overview_png=overview, cards=cards,
+        columns=report_columns(settings["temperatures_k"], _distinct(extra)), rows=rows, plots=plots,
+        overview_png=overview, cards=cards, viewers=viewers,
     )
     report = out_dir / REPORT_NAME
     atomic_write(report, lambda p: p.write_text(page, encoding="utf-8"))
-    return report, len(rows)
+    flagged = []
+    for row in rows:
+        flags = [f.strip() for f in str(row.get("flags") or "").split(",") if f.strip() and f.strip() != "symmetric rotor"]
+        if flags:
+            flagged.append((row["name"], row.get("bond"), ", ".join(flags)))
+    return RunReport(report, len(rows), flagged)

@@ -21,6 +21,7 @@ from .drawing import molecule_drawing
 from .plot import populations_figure, profile_figure
 from .structures import minima_sdf_text, scan_xyz_text
 from .summary import write_profile_table, write_summary
+from .viewer import viewer_page
 
 _UMASK = os.umask(0o022)
 os.umask(_UMASK)
@@ -106,6 +107,7 @@ def render_figures(result):
 
 
 STRUCTURE_NAME = "structure"  # the compound's drawing: structure.svg and structure.png
+VIEWER_NAME = "scan_3d.html"  # the compound's 3-D view of its scans (output.viewer), one page for every bond
 
 
 def render_drawings(result):
@@ -128,7 +130,8 @@ def write_results(result, out_dir, figures=None):
 
     Per bond: bond_<j-k>_profile.csv, _scan.xyz, _minima.sdf, _profile.png/.svg, _populations.png,
     _structure.svg/.png and, when the bond has a torsion fit, its files (output.forcefield); the
-    compound's structure.svg/.png (render_drawings); then summary.json.
+    compound's structure.svg/.png (render_drawings), its 3-D view scan_3d.html (output.viewer, opens
+    offline); then summary.json.
     figures: already rendered figures (render_figures); drawn here when not given.
 
     A folder that is missing or empty is written under a temporary sibling name and renamed into place
@@ -181,4 +184,7 @@ def _write_files(result, out_dir, figures):
             from .forcefield import write_torsion_fit
 
             write_torsion_fit(result, bond, out_dir)
+    page = viewer_page(result)
+    if page is not None:
+        atomic_write(out_dir / VIEWER_NAME, lambda p: p.write_text(page, encoding="utf-8"))
     atomic_write(out_dir / "summary.json", lambda p: write_summary(result, p))

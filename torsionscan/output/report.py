@@ -16,6 +16,7 @@ import matplotlib.pyplot as plt
 
 from ..molecule import numbered_smiles
 from ..profile import FIT_TARGET_KCAL_MOL
+from ..quality import FLAG_MEANINGS, flag_details, flags_text
 from ..units import wrap_deg
 from .summary import populations_disagree, spreadsheet_cell, spreadsheet_row
 
@@ -110,7 +111,7 @@ def population_texts(analysis):
         text = (f"{p.temperature_k:g} K: s-cis {100 * p.s_cis:.1f}%, s-trans {100 * p.s_trans:.1f}%, "
                 f"ΔG(s-cis − s-trans) {_delta_g_text(p.delta_g_kcal_mol)}")
         if getattr(p, "scis_window", None) is not None:
-            text += f"; |φ| ≤ {p.scis_window_deg:g}° {100 * p.scis_window:.2f}%"
+            text += f"; |φ| ≤ {p.scis_window_deg:g}° {100 * p.scis_window:.1f}%"
         texts.append(text)
     return (f"populations ({model}):" if texts else ""), texts
 
@@ -209,9 +210,87 @@ def bond_texts(bond):
     return [t for t in texts if t]
 
 
+def warning_texts(bond):
+    """One sentence per raised quality flag of a BondScan: the flag, what was found, what it means."""
+    return [f"{flag} ({found}): {FLAG_MEANINGS[flag]}" for flag, found in flag_details(bond)]
+
+
+def key_numbers(bond):
+    """[(quantity with unit, value text)] of a BondScan: the numbers a card's small table shows, in
+    the report's precision (percent to 0.1, kcal/mol to 0.01, degrees to 0.1)."""
+    analysis = bond.profile
+    rows = [("dihedral atoms", "-".join(str(a + 1) for a in bond.dihedral_atoms))]
+    lowest = analysis.lowest_minimum()
+    if lowest is not None:
+        rows.append(("global minimum φ (°)", angle_text(lowest.angle_deg)))
+    if bond.symmetric_rotor:
+        twist, planar, perpendicular = symmetric_rotor_shape(analysis)
+        rows += [("twist (°)", "—" if twist is None else f"{twist:.1f}"),
+                 ("barrier at planar (kcal/mol)", "—" if planar is None else f"{planar:.2f}"),
+                 ("barrier at perpendicular (kcal/mol)", "—" if perpendicular is None else f"{perpendicular:.2f}")]
+    else:
+        entries, _ = leading_answer(analysis)
+        for p in entries:
+            rows.append((f"s-cis at {p.temperature_k:g} K (%)", f"{100 * p.s_cis:.1f}"))
+        for p in entries:
+            rows.append((f"ΔG(s-cis − s-trans) at {p.temperature_k:g} K (kcal/mol)",
+                         f"{p.delta_g_kcal_mol:+.2f}" if math.isfinite(p.delta_g_kcal_mol) else "—"))
+        barrier = analysis.barrier_to_other_region()
+        rows.append(("barrier into the other region (kcal/mol)",
+                     "none (both minima in one region)" if barrier is None else f"{barrier:.2f}"))
+        for r in analysis.readiness:
+            rows.append((f"ΔG to planar s-cis at {r.temperature_k:g} K (kcal/mol)", f"{r.delta_g_kcal_mol:.2f}"))
+    energies = [analysis.relative_kcal_mol(r.energy_hartree) for r in (*bond.points, *analysis.maxima)]
+    energies = [e for e in energies if math.isfinite(e)]
+    if energies:
+        rows.append(("highest energy on the circle (kcal/mol)", f"{max(energies):.2f}"))
+    if analysis.fit is not None:
+        rows.append(("Fourier fit RMSE (kcal/mol)", f"{analysis.fit.rmse_kcal_mol:.2f}"))
+    computed = [p for p in bond.points if not p.mirrored]
+    rows.append(("scan points computed", str(len(computed))))
+    return rows
+
+
+def angle_text(angle_deg):
+    """An angle (degrees) with one decimal, 180 never shown as -180 and no "-0.0"."""
+    value = float(wrap_deg(angle_deg))
+    if abs(value) > 179.95:
+        value = 180.0
+    return f"{round(value, 1) + 0.0:.1f}"
+
+
 def compound_card(result):
-    """{"smiles": numbered SMILES, "bonds": [(bond label, bond_texts)]} of a ScanResult."""
-    return {"smiles": numbered_smiles(result.mol), "bonds": [(bond.label, bond_texts(bond)) for bond in result.bonds]}
+    """{"smiles": numbered SMILES, "bonds": [(bond label, bond_texts)], "numbers": {label: key_numbers},
+    "warnings": {label: warning_texts}, "flags": {label: flag names}} of a ScanResult."""
+    return {"smiles": numbered_smiles(result.mol), "bonds": [(bond.label, bond_texts(bond)) for bond in result.bonds],
+            "numbers": {bond.label: key_numbers(bond) for bond in result.bonds},
+            "warnings": {bond.label: warning_texts(bond) for bond in result.bonds},
+            "flags": {bond.label: bond.flags for bond in result.bonds}}
+
+
+def outcome_line(name, result, wall_time_s=None):
+    """The batch terminal's one line for a finished compound: per bond its s-cis share (%) at the
+    first temperature, its barrier (kcal/mol) and its flags."""
+    took = f" ({wall_time_s:.1f} s)" if wall_time_s is not None else ""
+    parts = []
+    for bond in result.bonds:
+        analysis = bond.profile
+        text = f"bond {bond.label}: "
+        if bond.symmetric_rotor:
+            twist, _, _ = symmetric_rotor_shape(analysis)
+            text += "symmetric rotor" + ("" if twist is None else f", twist {twist:.1f}°")
+        else:
+            entries, _ = leading_answer(analysis)
+            text += (f"s-cis {100 * entries[0].s_cis:.1f}% at {entries[0].temperature_k:g} K" if entries
+                     else "no populations")
+            barrier = analysis.barrier_to_other_region()
+            text += ", no barrier into the other region" if barrier is None else f", barrier {barrier:.2f} kcal/mol"
+        flags = [f for f in bond.flags if f != "symmetric rotor"]
+        if flags:
+            text += f" [{flags_text(flags)}]"
+        parts.append(text)
+    parts += [f"bond {label} FAILED: {why}" for label, why in result.failed_bonds]
+    return f"{name}: " + ("; ".join(parts) or "no bond scanned") + took
 
 
 # -- the results table ----------------------------------------------------------------------------
@@ -237,7 +316,7 @@ def table_columns(temperatures_k, extra_columns):
         columns += [f"s_cis_{key}", f"scis_window_{key}", f"dG_scis_minus_strans_{key}_kcal_mol",
                     f"s_cis_classical_{key}", f"s_cis_harmonic_{key}", f"dG_to_planar_scis_{key}_kcal_mol",
                     f"half_life_{key}_s"]
-    columns += ["fit_rmse_kcal_mol", "fit_target_met", "hysteresis", "rescore_level", "rescored_global_min_deg",
+    columns += ["fit_rmse_kcal_mol", "fit_target_met", "hysteresis", "flags", "rescore_level", "rescored_global_min_deg",
                 "rescored_barrier_to_other_region_kcal_mol"]
     columns += [f"rescored_s_cis_{_temperature_key(t)}" for t in temperatures_k] + ["rescored_population_model"]
     columns += ["method_disagreement_max_kcal_mol", "method_disagreement_warning", "refine_level", "refine_points",
@@ -314,6 +393,7 @@ def bond_row(bond):
         "fit_rmse_kcal_mol": _rounded(profile.fit.rmse_kcal_mol, _ENERGY_DIGITS),
         "fit_target_met": profile.fit.rmse_kcal_mol <= FIT_TARGET_KCAL_MOL,
         "hysteresis": bool(bond.hysteresis),
+        "flags": flags_text(bond.flags),
     }
     for p in leading:
         key = _temperature_key(p.temperature_k)
@@ -395,8 +475,10 @@ def compound_rows(record, result):
 
 
 def overview_figure(rows, temperature_k, method):
-    """Ranked bars: the leading s-cis population of every scanned bond at one temperature, barrier
-    beside it. Symmetric rotors are not ranked (a note under the bars counts them).
+    """Ranked bars: the leading s-cis population (%) of every scanned bond at one temperature, its
+    barrier (or why there is none) in a column on the right. The axis runs to the largest share
+    (rounded up to 10 %), not to a fixed width. Symmetric rotors are not ranked (a note under the
+    bars counts them).
 
     method: what computed the profiles (ScanResult.method), named in the title."""
     key = f"s_cis_{_temperature_key(temperature_k)}"
@@ -406,24 +488,28 @@ def overview_figure(rows, temperature_k, method):
     left_out = sum(1 for r in rows if r.get("symmetric_rotor") and r.get("status") == "done")
     note = (f"{left_out} symmetric rotor bond{'' if left_out == 1 else 's'} not ranked: "
             f"{SYMMETRIC_ROTOR_REASON}") if left_out else ""
-    height = 1.2 + 0.32 * max(len(shown), 1) + (0.4 if note else 0.0)
-    fig, ax = plt.subplots(figsize=(8.0, height), dpi=110)
+    height = 1.4 + 0.32 * max(len(shown), 1) + (0.4 if note else 0.0)
+    fig, ax = plt.subplots(figsize=(9.0, height), dpi=110)
     labels = [f"{r['name']}  (bond {r['bond']})" for r in shown]
     values = [100.0 * r[key] for r in shown]
-    positions = range(len(shown))
+    positions = list(range(len(shown)))
     ax.barh(positions, values, color="#1f5fa8", height=0.65)
-    for y, row, value in zip(positions, shown, values):
-        barrier = row["barrier_to_other_region_kcal_mol"]
-        text = f"{value:.1f}%" + (f"   barrier {barrier:.1f} kcal/mol" if barrier is not None else "")
-        ax.text(value + 1.0, y, text, va="center", fontsize=7, color="#333333")
-    ax.set_yticks(list(positions), labels, fontsize=8)
-    ax.invert_yaxis()
-    ax.set_xlim(0, 150)
-    ax.set_xticks(range(0, 101, 20))
+    right = max(10.0, min(100.0, 10.0 * math.ceil(max(values, default=10.0) * 1.12 / 10.0)))
+    for y, value in zip(positions, values):
+        inside = value > 0.8 * right
+        ax.text(value - 0.01 * right if inside else value + 0.01 * right, y, f"{value:.1f}%", va="center",
+                ha="right" if inside else "left", fontsize=8, color="white" if inside else "#333333")
+    ax.set_yticks(positions, labels, fontsize=8)
+    ax.set_ylim(len(shown) - 0.5, -0.5)
+    ax.set_xlim(0, right)
     ax.set_xlabel(f"s-cis population (|φ| < 90°) at {temperature_k:g} K / %")
+    side = ax.twinx()
+    side.set_ylim(ax.get_ylim())
+    side.set_yticks(positions, [_overview_barrier_text(r) for r in shown], fontsize=8, color="#333333")
+    side.tick_params(axis="y", length=0)
     more = f" (highest {len(shown)} of {len(done)})" if len(done) > len(shown) else ""
     models = list(dict.fromkeys(r["population_model"] for r in shown if r.get("population_model")))
-    ax.set_title(f"s-cis population by bond{more}; barrier from the global minimum into the other region\n"
+    ax.set_title(f"s-cis population by bond{more}; right: barrier from the global minimum into the other region\n"
                  f"{method} relaxed scans" + (f"; {', '.join(models)}" if models else ""), fontsize=9)
     if note:
         fig.text(0.01, 0.01, note, fontsize=7, color="#555555", ha="left", va="bottom", wrap=True)
@@ -431,3 +517,64 @@ def overview_figure(rows, temperature_k, method):
     else:
         fig.tight_layout()
     return fig
+
+
+def _overview_barrier_text(row):
+    barrier = row.get("barrier_to_other_region_kcal_mol")
+    if barrier is not None:
+        return f"barrier {barrier:.2f} kcal/mol"
+    return "no barrier: both minima in one region"
+
+
+# -- the report's table: the answer first, human headers with units -------------------------------
+# kinds: how html shows a value: "pct" a fraction as percent (0.1), "kcal" kcal/mol (0.01), "deg"
+# degrees (0.1), "time" seconds (3 significant figures), "yesno", "text"
+def report_columns(temperatures_k, extra_columns):
+    """[(table key, header with unit, kind)] of the report's results table, the answer first: the
+    compound, the bond, the leading s-cis share, the barrier, ΔG to planar s-cis and the flags, then
+    the rest. Keys are those of table_columns (the CSV); html drops columns with no value."""
+    first = _temperature_key(temperatures_k[0])
+    columns = [("name", "compound", "text"), ("bond", "bond", "text"),
+               (f"s_cis_{first}", f"s-cis at {temperatures_k[0]:g} K (%)", "pct"),
+               ("barrier_to_other_region_kcal_mol", "barrier into the other region (kcal/mol)", "kcal"),
+               (f"dG_to_planar_scis_{first}_kcal_mol", f"ΔG to planar s-cis at {temperatures_k[0]:g} K (kcal/mol)",
+                "kcal"),
+               ("flags", "flags", "text"), ("status", "status", "text"), ("reason", "reason", "text")]
+    for t in temperatures_k[1:]:
+        key = _temperature_key(t)
+        columns += [(f"s_cis_{key}", f"s-cis at {t:g} K (%)", "pct"),
+                    (f"dG_to_planar_scis_{key}_kcal_mol", f"ΔG to planar s-cis at {t:g} K (kcal/mol)", "kcal")]
+    columns += [("global_min_deg", "global minimum φ (°)", "deg"), ("scis_min_deg", "lowest s-cis minimum φ (°)", "deg"),
+                ("scis_min_rel_kcal_mol", "s-cis minimum (kcal/mol)", "kcal"),
+                ("strans_min_rel_kcal_mol", "s-trans minimum (kcal/mol)", "kcal"),
+                ("rotation_max_kcal_mol", "highest energy on the circle (kcal/mol)", "kcal")]
+    for t in temperatures_k:
+        key, at = _temperature_key(t), f"at {t:g} K"
+        columns += [(f"scis_window_{key}", f"near-planar s-cis window {at} (%)", "pct"),
+                    (f"dG_scis_minus_strans_{key}_kcal_mol", f"ΔG(s-cis − s-trans) {at} (kcal/mol)", "kcal"),
+                    (f"s_cis_classical_{key}", f"s-cis {at}, classical integral (%)", "pct"),
+                    (f"s_cis_harmonic_{key}", f"s-cis {at}, all-harmonic (%)", "pct"),
+                    (f"half_life_{key}_s", f"interconversion half-life {at} (s)", "time")]
+    columns += [("population_model", "population model", "text"), ("twist_deg", "twist (°)", "deg"),
+                ("planar_barrier_kcal_mol", "barrier at planar (kcal/mol)", "kcal"),
+                ("perpendicular_barrier_kcal_mol", "barrier at perpendicular (kcal/mol)", "kcal"),
+                ("fit_rmse_kcal_mol", "Fourier fit RMSE (kcal/mol)", "kcal"),
+                ("rescore_level", "re-scored at", "text"),
+                ("rescored_global_min_deg", "re-scored global minimum φ (°)", "deg"),
+                ("rescored_barrier_to_other_region_kcal_mol", "re-scored barrier (kcal/mol)", "kcal")]
+    columns += [(f"rescored_s_cis_{_temperature_key(t)}", f"re-scored s-cis at {t:g} K (%)", "pct")
+                for t in temperatures_k]
+    columns += [("method_disagreement_max_kcal_mol", "re-scored vs scan, largest difference (kcal/mol)", "kcal"),
+                ("refine_level", "refined at", "text"), ("refine_points", "refined points", "text"),
+                ("refined_global_min_deg", "refined global minimum φ (°)", "deg"),
+                ("refined_barrier_to_other_region_kcal_mol", "refined barrier (kcal/mol)", "kcal")]
+    for t in temperatures_k:
+        key = _temperature_key(t)
+        columns += [(f"refined_s_cis_{key}", f"refined s-cis at {t:g} K (%)", "pct"),
+                    (f"refined_dG_to_planar_scis_{key}_kcal_mol", f"refined ΔG to planar s-cis at {t:g} K (kcal/mol)",
+                     "kcal")]
+    columns += [("refined_disagreement_max_kcal_mol", "refined vs scan, largest difference (kcal/mol)", "kcal"),
+                ("smiles", "SMILES with atom numbers", "text"), ("dihedral_atoms", "dihedral atoms", "text"),
+                ("scis_meaning", "0° means", "text"), ("compound_wall_time_s", "wall time (s)", "time")]
+    known = {key for key, _, _ in columns}
+    return columns + [(c, c, "text") for c in extra_columns if c not in known]
