@@ -67,34 +67,20 @@ def profile_figure(result, bond, title=None):
                if p.mirrored == mirrored and math.isfinite(p.energy_hartree)]
         if not pts:
             continue
-        ax.plot([p.angle_deg for p, _ in pts], [e for _, e in pts], "o", ms=5,
+        ax.plot([p.angle_deg for p, _ in pts], [e for _, e in pts], "o", ms=5, zorder=6,
                 mfc="white" if mirrored else "#1f5fa8", mec="#1f5fa8", ls="none", label=legend)
         bad = [(p.angle_deg, e) for p, e in pts if not p.converged]
         if bad:
-            ax.plot(*zip(*bad), "x", color="red", ms=8, ls="none", label="not converged")
+            ax.plot(*zip(*bad), "x", color="red", ms=8, ls="none", zorder=7, label="not converged")
 
     top = max(float(series.value(dense).max()), 1.0)
     if bond.rescored is not None:
         top = max(top, _rescored_overlay(ax, bond, dense))
     if bond.refined is not None:
         top = max(top, _refined_overlay(ax, bond.refined, dense))
-    for records, marker, colour, prefix, offset in (
-        (analysis.minima, "v", "#2a7f3f", "min ", -26), (analysis.maxima, "^", "#b23a2e", "", 8)
-    ):
-        for m in records:
-            e = analysis.relative_kcal_mol(m.energy_hartree)
-            if not math.isfinite(e):
-                continue
-            angle = m.angle_deg
-            shown = round(abs(angle) if abs(angle) > 179.5 else angle)  # int: no "-0"
-            label = f"{prefix}{shown}°\n{e:.2f}"
-            # a point at +-180 deg sits on both edges of the plot: mark both, label the inner side
-            places = [-180.0, 180.0] if abs(angle) > 179.5 else [angle]
-            for x in places:
-                ax.plot(x, e, marker, color=colour, ms=8, zorder=5, clip_on=False)
-                align = "left" if x == -180.0 else ("right" if x == 180.0 and len(places) == 2 else "center")
-                ax.annotate(label, (x, e), textcoords="offset points", xytext=(0, offset), ha=align,
-                            fontsize=8, color=colour)
+    ax.set_xlim(-180, 180)
+    ax.set_ylim(-0.12 * top - 0.3, 1.25 * top + 0.3)
+    _stationary_marks(ax, analysis, series, top)
 
     for label in population_legend(bond):
         ax.plot([], [], " ", label=label)
@@ -108,11 +94,81 @@ def profile_figure(result, bond, title=None):
         lower.set_xlabel(axis_label)
     else:
         ax.set_xlabel(axis_label)
-    ax.set_ylim(-0.12 * top - 0.3, 1.25 * top + 0.3)
-    ax.set_title(title or f"{_dihedral_text(result, bond)} — relaxed {result.method} scan (an estimate)", fontsize=10)
-    ax.legend(fontsize=7, loc="lower center", bbox_to_anchor=(0.5, 1.06), ncol=2, frameon=False)
+    ax.set_title(title or f"{_dihedral_text(result, bond)} — relaxed {result.method} scan (an estimate)", fontsize=11)
+    ax.legend(fontsize=8.5, loc="lower center", bbox_to_anchor=(0.5, 1.04), ncol=2, frameon=False)
     fig.tight_layout()
     return fig
+
+
+_OFF_FIT_KCAL_MOL = 0.05  # a stationary point this far from the fit gets a legend line saying why
+
+
+def _angle_label(angle_deg):
+    """Whole degrees for a marker label; a point at +-180 deg is "±180°", never "-180°" beside "180°"."""
+    if abs(angle_deg) > 179.5:
+        return "±180°"
+    return f"{round(angle_deg) + 0:d}°"
+
+
+def _mirror_merged(records, analysis):
+    """[(angle label, energy, [angles])] of stationary points, a mirror pair (±a at equal energy) as one
+    "±a" label so two labels never sit on top of each other near 0 or 180 deg."""
+    items = [(m.angle_deg, analysis.relative_kcal_mol(m.energy_hartree)) for m in records]
+    items = [(a, e) for a, e in items if math.isfinite(e)]
+    used, merged = set(), []
+    for n, (angle, energy) in enumerate(items):
+        if n in used:
+            continue
+        used.add(n)
+        partner = next((k for k, (a, e) in enumerate(items) if k not in used and abs(a + angle) < 0.6
+                        and abs(e - energy) < 0.01 and abs(angle) > 0.3), None)
+        if abs(angle) > 179.5:
+            merged.append(("±180°", energy, [-180.0, 180.0]))
+        elif partner is not None:
+            used.add(partner)
+            merged.append((f"±{round(abs(angle)):d}°", energy, [-abs(angle), abs(angle)]))
+        else:
+            merged.append((_angle_label(angle), energy, [angle]))
+    return merged
+
+
+def _stationary_marks(ax, analysis, series, top):
+    """Minima (green, label below) and barrier tops (red, label above) as open markers that leave the
+    scan point under them visible; a label per point (mirror pairs and ±180 once), moved up or down
+    by one label height when it would overlap a label already placed; a legend line when a refined
+    stationary point sits off the fitted curve."""
+    fig = ax.figure  # the limits are set: transData gives the pixel positions of the data
+    placed = []  # (x0, x1, y0, y1) in pixels of the labels drawn so far
+    width_px, height_px = 52.0, 26.0
+    off_fit = 0.0
+    for records, marker, colour, prefix, below in ((analysis.minima, "v", "#2a7f3f", "min ", True),
+                                                   (analysis.maxima, "^", "#b23a2e", "", False)):
+        for label, energy, angles in _mirror_merged(records, analysis):
+            if series is not None:
+                off_fit = max(off_fit, max(abs(float(series.value(np.array([a])) [0]) - energy) for a in angles))
+            for x in angles:
+                ax.plot(x, energy, marker, mfc="none", mec=colour, mew=1.6, ms=11, zorder=5, clip_on=False)
+            anchor = angles[-1] if len(angles) == 1 or abs(angles[0]) < 179.5 else 180.0
+            if len(angles) == 2 and abs(angles[0]) < 179.5:
+                anchor = 0.0 if abs(angles[0]) < 30.0 else angles[-1]
+            px, py = ax.transData.transform((anchor, energy))
+            step = -1 if below else 1
+            offset = step * 18.0 - (height_px if below else 0.0)
+            for _ in range(6):
+                box = (px - width_px / 2, px + width_px / 2, py + offset, py + offset + height_px)
+                if not any(box[0] < b[1] and b[0] < box[1] and box[2] < b[3] and b[2] < box[3] for b in placed):
+                    break
+                offset += step * height_px
+            placed.append(box)
+            align = "right" if anchor >= 179.5 else ("left" if anchor <= -179.5 else "center")
+            dx = -4 if align == "right" else (4 if align == "left" else 0)
+            ax.annotate(f"{prefix}{label}\n{energy:.2f}", (anchor, energy), textcoords="offset points",
+                        xytext=(dx * 72 / fig.dpi, (offset + (height_px if below else 0.0)) * 72 / fig.dpi),
+                        ha=align, va="top" if below else "bottom", fontsize=8.5, color=colour, zorder=8)
+    ax.plot([], [], "v", mfc="none", mec="#2a7f3f", mew=1.6, ms=9, ls="none", label="minimum (kcal/mol)")
+    ax.plot([], [], "^", mfc="none", mec="#b23a2e", mew=1.6, ms=9, ls="none", label="barrier top (kcal/mol)")
+    if off_fit > _OFF_FIT_KCAL_MOL:
+        ax.plot([], [], " ", label=f"minima and tops: relaxed off the grid, up to {off_fit:.2f} kcal/mol from the fit")
 
 
 def population_legend(bond):
