@@ -15,7 +15,8 @@ from . import __version__
 from .errors import InputError, StorageError, TorsionScanError
 
 log = logging.getLogger("torsionscan")
-DEMO_LIST = Path("inputs/demo_compounds.csv")
+DEMO_LIST = Path(__file__).resolve().parent / "data" / "demo_compounds.csv"  # ships with the package
+DEMO_OUT = Path("results/demo")  # under the working directory; results/ is ignored by git
 PARTIAL_FAILURE = 4  # exit status of a batch in which some compounds failed
 
 
@@ -151,9 +152,23 @@ def _medium(settings):
 
 
 def _minima_text(analysis):
-    """Angles (deg) and relative energies (kcal/mol) of a profile's minima on one line."""
-    return "   ".join(f"{m.angle_deg:7.1f}° {analysis.relative_kcal_mol(m.energy_hartree):6.2f}"
+    """Angles (deg, 180 never as -180) and relative energies (kcal/mol) of a profile's minima on one line."""
+    from .output.report import angle_text
+
+    return "   ".join(f"{angle_text(m.angle_deg):>6s}° {analysis.relative_kcal_mol(m.energy_hartree):6.2f}"
                       for m in analysis.minima)
+
+
+def _flag_lines(bond):
+    """The quality flags of a bond (quality.FLAG_MEANINGS): 'flags: none', or one warning line per
+    raised flag with what was found and what it means."""
+    from .output.report import warning_texts
+    from .quality import SYMMETRIC_ROTOR
+
+    texts = [text for flag, text in zip(bond.flags, warning_texts(bond)) if flag != SYMMETRIC_ROTOR]
+    if not texts:  # a symmetric rotor's reason is already the population line: named, not repeated
+        return ["  flags: " + (SYMMETRIC_ROTOR if bond.symmetric_rotor else "none")]
+    return [f"  warning: {text}" for text in texts]
 
 
 def _barrier_lines(analysis, symmetric):
@@ -202,9 +217,7 @@ def _rotor_lines(analysis, symmetric_rotor=False):
 
 
 def _fit_lines(bond):
-    """The fit, cost and hysteresis line of a bond, and the warning when the fit misses its target."""
-    from .profile import FIT_TARGET_KCAL_MOL
-
+    """The fit, cost and hysteresis line of a bond (its warnings are the flag lines)."""
     fit = bond.profile.fit
     computed = [p for p in bond.points if not p.mirrored]
     unconverged = sum(1 for p in computed if not p.converged)
@@ -217,11 +230,6 @@ def _fit_lines(bond):
         + (f" (+{bond.frequency_gradient_evaluations} for frequencies)" if bond.frequency_gradient_evaluations else "")
         + f"; hysteresis: {hysteresis}"
     ]
-    if not fit.rmse_kcal_mol <= FIT_TARGET_KCAL_MOL:
-        lines.append(
-            f"  warning: the Fourier fit misses its {FIT_TARGET_KCAL_MOL} kcal/mol target; "
-            "fitted minima and populations are approximate: try a smaller --step"
-        )
     return lines
 
 
@@ -238,6 +246,7 @@ def format_summary(result, out_dir):
         kind = "conjugated" if bond.conjugated else "chosen"
         lines.append(f"dihedral {atoms} (bond {bond.label}, {kind}; {angle_meaning_text(bond)})")
         lines += _population_lines(bond.profile, bond.symmetric_rotor)
+        lines += _flag_lines(bond)
         lines.append(f"  minima (kcal/mol):   {_minima_text(bond.profile)}")
         lines += _barrier_lines(bond.profile, bond.symmetric)
         lines += _rotor_lines(bond.profile, bond.symmetric_rotor)
@@ -300,15 +309,14 @@ def _vibration_lines(analysis, symmetric_rotor=False):
     """Terminal lines on the nature of the stationary points and the planar s-cis cost of a diene."""
     from .output.report import readiness_texts
 
+    from .quality import STATIONARY_CHECK, wrong_stationary_points
+
     lines = []
     checked = [m for m in analysis.minima + analysis.maxima if m.imaginary_count is not None]
     if checked:
-        wrong = [m for m in analysis.minima if m.imaginary_count] + [
-            m for m in analysis.maxima if m.imaginary_count != 1 or not m.imaginary_along_torsion]
+        wrong = wrong_stationary_points(analysis)
         lines.append("  frequencies: " + ("minima have no imaginary mode; each barrier top has one, along the torsion"
-                                          if not wrong else
-                                          "CHECK " + ", ".join(f"{m.angle_deg:.1f}° ({m.imaginary_count} imaginary)"
-                                                               for m in wrong)))
+                                          if not wrong else f"{STATIONARY_CHECK} (see the warning above)"))
     if not symmetric_rotor:
         lines += [f"  {text}" for text in readiness_texts(analysis)]
     return lines
@@ -508,12 +516,17 @@ def run_batch_command(args):
     out_dir = args.out or Path("results") / args.list.stem
     outcome = run_batch(args.list, out_dir, _settings(args), _batch_options(args), BatchProgress(),
                         command=" ".join(["torsionscan", *sys.argv[1:]]))
-    report, _ = write_run_report(out_dir)
+    written = write_run_report(out_dir)
+    report = written[0]
     counts = outcome.counts
     print(f"{counts['done']} done, {counts['failed']} failed, {counts['pending']} pending "
           f"({outcome.computed} computed now in {outcome.wall_time_s:.0f} s)")
     for name, reason in outcome.failures:
         print(f"  failed: {name}: {reason}")
+    if written.flagged:
+        print(f"{len(written.flagged)} bond(s) flagged (see the README's quality flags, and the report's cards):")
+        for name, bond, flags in written.flagged:
+            print(f"  flagged: {name} bond {bond}: {flags}")
     print(f"table: {out_dir / 'scan_table.csv'}\nreport: {report}")
     print(f"{args.method} estimates: read the caution in the report and confirm decisions at a higher level.")
     return PARTIAL_FAILURE if outcome.failures else 0
@@ -611,9 +624,11 @@ def build_parser():
     _add_scan_options(batch_parser)
     batch_parser.set_defaults(handler=run_batch_checked)
 
-    demo_parser = commands.add_parser("demo", help="batch-scan the demo compound list into results/demo")
-    demo_parser.add_argument("list", nargs="?", type=Path, default=DEMO_LIST)
-    demo_parser.add_argument("--out", type=Path, default=Path("results/demo"))
+    demo_parser = commands.add_parser("demo", help="batch-scan the demo compound list (shipped with the package) "
+                                                   "into results/demo under the working directory")
+    demo_parser.add_argument("list", nargs="?", type=Path, default=DEMO_LIST,
+                             help="another compound list instead of the shipped demo list")
+    demo_parser.add_argument("--out", type=Path, default=DEMO_OUT, help="run folder (default results/demo)")
     _add_batch_options(demo_parser)
     _add_scan_options(demo_parser)
     demo_parser.set_defaults(handler=run_batch_checked)

@@ -1,7 +1,15 @@
-"""Progress of a batch on the terminal: a redrawn bar on a terminal, one plain line per compound otherwise."""
+"""Progress of a batch on the terminal: one line per finished compound with its answer (s-cis share,
+barrier, quality flags) or its failure, and on a terminal a redrawn bar with the time left."""
 
+import logging
 import sys
 import time
+
+from ..errors import InputError
+from ..records import ScanResult
+from .report import outcome_line
+
+log = logging.getLogger(__name__)
 
 
 def _clock(seconds):
@@ -19,6 +27,7 @@ class BatchProgress:
         self.interactive = self.stream.isatty()
         self.finished = 0
         self.failed = 0
+        self.flagged = []  # (name, [(bond label, flag)]) of the compounds finished with a quality flag
         self.started = time.monotonic()
 
     def _status(self):
@@ -58,10 +67,24 @@ class BatchProgress:
         took = f" in {seconds:.1f} s" if seconds is not None else ""
         if failed:
             self._say(f"{outcome['name']}: FAILED{took}: {outcome['reason']}")
-        elif not self.interactive:
-            self._say(f"{outcome['name']}: done{took}; {self._status()}")
+        else:
+            line = self._result_line(outcome)
+            self._say(line if self.interactive else f"{line}; {self._status()}")
         if self.interactive:
             self._draw()
+
+    def _result_line(self, outcome):
+        """The one-line answer of a done outcome; "done" alone when its result cannot be read."""
+        seconds = outcome.get("wall_time_s")
+        try:
+            result = ScanResult.from_dict(outcome["result"])
+        except (InputError, KeyError, TypeError) as error:
+            log.debug("no result line for %s: %s", outcome.get("name"), error)
+            return f"{outcome['name']}: done" + (f" in {seconds:.1f} s" if seconds is not None else "")
+        flags = [(bond.label, flag) for bond in result.bonds for flag in bond.flags if flag != "symmetric rotor"]
+        if flags:
+            self.flagged.append((outcome["name"], flags))
+        return outcome_line(outcome["name"], result, seconds)
 
     def note(self, text):
         """Show one line about the run (a worker replaced, say) without counting a compound."""
