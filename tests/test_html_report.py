@@ -592,3 +592,22 @@ def test_the_report_card_shows_the_drawing_and_what_each_bond_says(tmp_path, mod
     assert rows["biaryl"]["symmetric_rotor"] == "True" and rows["biaryl"]["s_cis_298.15K"] == ""
     assert rows["butadiene"]["smiles"] == "[CH2:1]=[CH:2][CH:3]=[CH2:4]"
 
+
+
+def test_a_formula_name_is_text_in_the_run_table(tmp_path, model_scan):
+    formula = '=HYPERLINK("http://x","y")'
+    out = tmp_path / "run"
+    with RunStore(out) as store:
+        store.claim_settings(MODEL_SETTINGS.as_dict(), "list.csv")
+        store.add_compounds([CompoundEntry(name=formula, where="line 2", smiles="C=CC=C", extra={"note": "+1 cup"}),
+                             CompoundEntry(name="ethane", where="line 3", smiles="CC", extra={"note": "-5"})])
+        session = store.start_session("t")
+        store.record_done(formula, model_scan, session, 1.0)
+        store.record_failed("ethane", "no conjugated single bond", session)
+    write_run_report(out)
+    text = (out / "scan_table.csv").read_text()
+    rows = list(csv.DictReader(io.StringIO(text)))
+    assert rows[0]["name"] == "'" + formula and rows[0]["note"] == "'+1 cup"  # read as text by spreadsheets
+    assert rows[1]["note"] == "-5"  # a number stays a number
+    assert float(rows[0]["rotation_max_kcal_mol"]) == pytest.approx(5.30, abs=0.01)
+    assert "\n=" not in text and ",=" not in text
