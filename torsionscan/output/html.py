@@ -26,7 +26,7 @@ MISSING = "\u2014"  # em dash, shown for None and NaN
 _STYLE = """
 :root { color-scheme: light; }
 body { font-family: system-ui, -apple-system, "Segoe UI", Roboto, "Helvetica Neue", Arial, sans-serif;
-       color: #222; background: #fff; margin: 0 auto; padding: 1rem 1.5rem 2rem; max-width: 72rem;
+       color: #222; background: #fff; margin: 0 auto; padding: 1rem 1.5rem 2rem; max-width: 96rem;
        line-height: 1.45; font-size: 15px; }
 h1 { font-size: 1.5rem; margin: 0.5rem 0 1rem; font-weight: 600; }
 h2 { font-size: 1.2rem; margin: 2rem 0 0.5rem; font-weight: 600; border-bottom: 1px solid #ddd;
@@ -63,7 +63,7 @@ table.results td.col-population_model, table.results td.col-scis_meaning { white
                                                                            min-width: 10rem; max-width: 22rem; }
 table.results td.col-flags { color: #8a5a00; }
 table.results td.col-name a { display: inline-flex; align-items: center; gap: 0.4rem; }
-table.results img.thumb { height: 44px; width: auto; border: none; background: #fff; }
+table.results img.thumb { height: 60px; width: auto; border: none; background: #fff; }
 table.results img.thumb:not([src]) { display: none; }
 table.results thead th:hover, table.results thead th:focus { background: #e6e8eb; }
 table.results thead th[aria-sort="ascending"]::after { content: " \\25B2"; font-size: 0.7em; }
@@ -387,7 +387,9 @@ def _visible(columns, rows):
     """Columns that hold a value in at least one row (all of them when there is no row)."""
     if not rows:
         return columns
-    return [c for c in columns if any(row.get(c[0]) not in (None, "") for row in rows)]
+    failed = any(row.get("status") == "failed" for row in rows)
+    return [c for c in columns if any(row.get(c[0]) not in (None, "") for row in rows)
+            and (failed or c[0] != "status")]  # "done" in every row says nothing
 
 
 def _results_table(columns, rows, slugs, drawings=()):
@@ -401,7 +403,7 @@ def _results_table(columns, rows, slugs, drawings=()):
     for row in rows:
         failed = row.get("status") == "failed"
         classes = ["failed"] if failed else []
-        if row.get("flags"):
+        if _warning_flags(row):
             classes.append("flagged")
         attrs = f' class="{" ".join(classes)}"' if classes else ""
         if failed and row.get("reason"):
@@ -434,6 +436,11 @@ def _results_table(columns, rows, slugs, drawings=()):
 
 def _class_safe(key):
     return re.sub(r"[^A-Za-z0-9_-]", "_", str(key))
+
+
+def _warning_flags(row):
+    """The flags of a table row that call for care (all but "symmetric rotor", which says what the row holds)."""
+    return [f.strip() for f in str(row.get("flags") or "").split(",") if f.strip() and f.strip() != "symmetric rotor"]
 
 
 def _flag_legend(rows):
@@ -502,7 +509,7 @@ def html_report(*, title, run_info, settings, caution, columns, rows, plots, ove
     names = list(dict.fromkeys(row.get("name") for row in rows))
     slugs = _slugs(names)
     n_failed = sum(1 for row in rows if row.get("status") == "failed")
-    n_flagged = sum(1 for row in rows if row.get("flags"))
+    n_flagged = sum(1 for row in rows if _warning_flags(row))
     drawings = {name for name, card in cards.items() if card.get("drawing_png") or card.get("drawing_svg")}
     settings_rows = settings_pairs(settings) if typed else _flatten(settings)
 

@@ -18,8 +18,8 @@ from importlib import resources
 from ..units import BOHR_ANGSTROM
 
 LIBRARY_NAME = "3Dmol.js 2.5.5 (BSD-3-Clause)"
-_PROFILE_SIZE = (340, 150)  # pixels of the small profile under the 3-D view
-_MARGIN = (34, 10, 10, 22)  # left, right, top, bottom
+_PROFILE_SIZE = (340, 160)  # pixels of the small profile under the 3-D view
+_MARGIN = (34, 10, 20, 22)  # left, right, top, bottom
 
 
 @lru_cache(maxsize=1)
@@ -89,7 +89,7 @@ def _profile_svg(data):
     for value in (0.0, high):
         parts.append(f'<text x="{left - 3}" y="{y(value) + 3:.1f}" font-size="9" text-anchor="end" '
                      f'fill="#555">{value:.1f}</text>')
-    parts.append(f'<text x="4" y="{top + 8}" font-size="8" fill="#555">kcal/mol</text>')
+    parts.append(f'<text x="4" y="{top - 8}" font-size="9" fill="#555">kcal/mol</text>')
     path = " ".join(f"{x(a):.1f},{y(e):.1f}" for a, e in zip(data["angles"], data["energies"]) if math.isfinite(e))
     parts.append(f'<polyline points="{path}" fill="none" stroke="#888" stroke-width="1"/>')
     for n, (a, e, ok) in enumerate(zip(data["angles"], data["energies"], data["converged"])):
@@ -128,7 +128,8 @@ VIEWER_STYLE = """
 .scan-viewer .viewer-body { display: none; gap: 0.6rem 1.2rem; flex-wrap: wrap; align-items: flex-start; }
 .scan-viewer.open .viewer-body { display: flex; }
 .scan-viewer.open .open-viewer { display: none; }
-.scan-viewer .mol3d { position: relative; width: 420px; height: 320px; border: 1px solid #ddd; }
+.scan-viewer .mol3d { position: relative; width: 420px; height: 320px; border: 1px solid #ddd; overflow: hidden; }
+.scan-viewer .frame-pick { display: block; margin: 0.3rem 0; }
 .scan-viewer .viewer-side { flex: 1 1 20rem; font-size: 0.85rem; }
 .scan-viewer input.frame { width: 240px; vertical-align: middle; }
 .scan-viewer svg .pt { cursor: pointer; }
