@@ -173,6 +173,7 @@ def _flag_lines(bond):
 
 def _barrier_lines(analysis, symmetric):
     """One line per barrier; a symmetric profile repeats every barrier as its mirror image: shown once."""
+    from .output.report import angle_text
     from .units import KCAL_KJ
 
     lines, shown = [], set()
@@ -183,9 +184,9 @@ def _barrier_lines(analysis, symmetric):
         shown.add(key)
         flag = "" if b.converged else "  [refinement not converged]"
         lines.append(
-            f"  barrier {b.from_minimum_deg:7.1f}° → {b.to_minimum_deg:7.1f}° over "
-            f"{b.over_maximum_deg:7.1f}°: {b.height_kcal_mol:5.2f} kcal/mol ({b.height_kcal_mol * KCAL_KJ:.1f} kJ/mol)"
-            f"{flag}"
+            f"  barrier {angle_text(b.from_minimum_deg):>6s}° → {angle_text(b.to_minimum_deg):>6s}° over "
+            f"{angle_text(b.over_maximum_deg):>6s}°: {b.height_kcal_mol:5.2f} kcal/mol "
+            f"({b.height_kcal_mol * KCAL_KJ:.1f} kJ/mol){flag}"
         )
     return lines
 
@@ -399,13 +400,15 @@ def run_scan(args):
             check_reference(molecule.symbols, molecule.charge, molecule.unpaired_electrons)
     elif args.reference:
         raise InputError("--reference needs --refine LEVEL: the reference energies are computed at the refined structures")
+    _check_threads("--cores", args.cores)
+    from .threads import usable_cores
+
     result = scan(
-        source, bond=args.bond, name=args.name, charge=args.charge,
-        unpaired_electrons=args.unpaired_electrons, record=args.record, settings=settings,
+        source, bond=args.bond, name=args.name, charge=args.charge, unpaired_electrons=args.unpaired_electrons,
+        record=args.record, settings=settings, cores=args.cores or usable_cores(),
     )
     if level is not None:
         from .rescore import rescore_result
-        from .threads import usable_cores
 
         result = rescore_result(result, level, args.dft_threads or usable_cores())
     if refine_level is not None:
@@ -567,6 +570,9 @@ def build_parser():
                              help="re-score the scan geometries with DFT: cheap, standard, careful or functional/basis "
                                   "(needs the [dft] extra)")
     scan_parser.add_argument("--dft-threads", type=int, default=None, help="threads for DFT (default: all cores)")
+    scan_parser.add_argument("--cores", type=int, default=None,
+                             help="processes for the frequency stage's displaced gradients (default: all cores; "
+                                  "results are identical with any number)")
     _add_refine_options(scan_parser, "--refine")
     scan_parser.add_argument("--fit-for", choices=["mmff94"],
                              help="also fit dihedral terms that complete this MM model (see 'fit')")
