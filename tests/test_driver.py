@@ -156,3 +156,16 @@ def test_an_engine_is_refused_for_what_its_capabilities_do_not_cover():
     engine.capabilities = frozenset()  # an engine that states no charge support
     with pytest.raises(torsionscan.InputError, match="cannot handle a charge of 1"):
         torsionscan.scan("C=CC=C[CH2+]", engine=engine, settings=QUICK)
+
+
+@pytest.mark.xtb
+def test_the_frequency_stage_on_two_cores_gives_the_one_core_result_bit_for_bit():
+    # every displaced gradient starts from the reference structure's wavefunction, whichever process runs it
+    settings = torsionscan.ScanSettings(conformers=1, step_deg=30.0)
+    one = torsionscan.scan("C=CC=O", settings=settings, cores=1).to_dict()
+    two = torsionscan.scan("C=CC=O", settings=settings, cores=2).to_dict()
+    for plain in (one, two):
+        for bond in plain["bonds"]:
+            bond["wall_time_s"] = bond["frequency_wall_time_s"] = 0.0
+            bond["frequency_gradient_evaluations"] = 0  # each process adds one reference gradient
+    assert one == two

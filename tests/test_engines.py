@@ -133,3 +133,23 @@ def test_conjugation_reuses_the_last_calculation(acrolein, backend):
     assert 1.0 < order < 1.3 and 1.0 < gap < 6.0
     engine.conjugation(coords + 0.01, 1, 2)
     assert engine.evaluations == 2
+
+
+@pytest.mark.xtb
+@pytest.mark.parametrize("backend", ["xtb-python", "tblite"])
+def test_gradients_from_a_reference_do_not_depend_on_their_order(backend):
+    from torsionscan.molecule import load_molecule, starting_structures
+    from torsionscan.units import ANGSTROM_BOHR
+
+    molecule = load_molecule("C=CC=O")
+    start = starting_structures(molecule, 1)[0] * ANGSTROM_BOHR
+    displaced = [start + np.random.default_rng(n).normal(scale=0.005, size=start.shape) for n in range(6)]
+    engine = make_engine(molecule.numbers, backend=backend)
+    forward = engine.gradients_from_reference(start, displaced)
+    backward = engine.gradients_from_reference(start, displaced[::-1])[::-1]
+    alone = [make_engine(molecule.numbers, backend=backend).gradients_from_reference(start, [d])[0] for d in displaced]
+    assert all(np.array_equal(a, b) and np.array_equal(a, c) for a, b, c in zip(forward, backward, alone))
+    # and they are the converged gradients: a warm-started chain agrees to the SCF accuracy
+    chained = [engine.energy_and_gradient(d)[1] for d in displaced]
+    assert max(np.abs(a - b).max() for a, b in zip(forward, chained)) < 1e-6
+    assert engine.evaluations == 2 * 7 + 6

@@ -9,6 +9,7 @@ difference above the hysteresis threshold is recorded. The profile is then analy
 analysis.analyse_profile with the refinement of its minima and maxima done here.
 """
 
+import functools
 import logging
 import time
 from dataclasses import replace
@@ -20,6 +21,7 @@ from .analysis import analyse_profile, display_angle, in_arc, is_symmetric_rotor
 from .bonding import graph_bonds
 from .coordinate import ScanCoordinate, mirror, mirror_hessian
 from .engines import CHARGE, CONJUGATION, SOLVENT, SPIN, make_engine
+from .engines.pool import GradientPool
 from .errors import CalculationError, InputError
 from .freeenergy import add_free_energies, rotor_and_rates
 from .molecule import (
@@ -271,7 +273,7 @@ class BondScanner:
                                 result.energy, how, result.converged, coords)
 
 
-def scan_bond(molecule, bond, relaxer, start, settings):
+def scan_bond(molecule, bond, relaxer, start, settings, pool=None):
     """Relaxed scan of one dihedral from the start minimum `start` = (coords, energy, hessian)."""
     began = time.perf_counter()
     evaluations_before = relaxer.engine.evaluations
@@ -290,14 +292,17 @@ def scan_bond(molecule, bond, relaxer, start, settings):
         planar_start = None
         if is_diene_bond(molecule.mol, bond.atoms):
             planar_start = scanner.nearest(circle, 0.0)
-        scanned, started = relaxer.engine.evaluations, time.perf_counter()
+        def evaluations():
+            return relaxer.engine.evaluations + (pool.evaluations if pool else 0)
+
+        scanned, started = evaluations(), time.perf_counter()
         try:
             bond_scan = replace(bond_scan, profile=add_free_energies(
                 bond_scan.profile, bond.atoms, bond_scan.symmetric, relaxer, masses, settings,
-                planar_start and (planar_start[0].coords_bohr, planar_start[1]), scanner.coordinate.moving[0]))
+                planar_start and (planar_start[0].coords_bohr, planar_start[1]), scanner.coordinate.moving[0], pool))
         except (CalculationError, ValueError, np.linalg.LinAlgError) as error:
             log.warning("dihedral %s: frequencies failed (%s); free energies left out", bond.label, error)
-        bond_scan = replace(bond_scan, frequency_gradient_evaluations=relaxer.engine.evaluations - scanned,
+        bond_scan = replace(bond_scan, frequency_gradient_evaluations=evaluations() - scanned,
                             frequency_wall_time_s=time.perf_counter() - started)
     profile = rotor_and_rates(bond_scan.profile, molecule.mol, bond.atoms, settings.temperatures_k,
                               settings.scis_window_deg)
@@ -316,13 +321,15 @@ def _check_capabilities(engine, molecule, settings):
 
 
 def scan(source, *, bond=None, name=None, charge=None, unpaired_electrons=0, record=1, settings=None,
-         time_limit_s=None, engine=None):
+         time_limit_s=None, engine=None, cores=1):
     """Relaxed torsion scan of every conjugated single bond of a molecule (or the one `bond` names).
 
     source: SMILES string, MOL/SDF/XYZ path or RDKit molecule; bond: 1-based "j-k" or "i-j-k-l".
     time_limit_s: wall-clock seconds allowed for the whole molecule (checked before each gradient).
     engine: an engine object for this molecule (engines.Engine); default: the GFN-xTB engine the
-    settings name. Returns a ScanResult; raises InputError, CalculationError or TimeLimitExceeded.
+    settings name. cores: processes for the frequency stage's displaced gradients (the default
+    engine only; results identical to one process). Returns a ScanResult; raises InputError,
+    CalculationError or TimeLimitExceeded.
     """
     deadline = None if time_limit_s is None else time.monotonic() + time_limit_s
     settings = settings or ScanSettings()
@@ -333,23 +340,31 @@ def scan(source, *, bond=None, name=None, charge=None, unpaired_electrons=0, rec
         raise InputError(
             f"{molecule.smiles}: no conjugated single bond found; pick a bond with --bond j-k (1-based atom numbers)"
         )
+    pool = None
     if engine is not None:
         _check_capabilities(engine, molecule, settings)
     else:
-        engine = make_engine(
-            molecule.numbers, charge=molecule.charge, unpaired_electrons=molecule.unpaired_electrons,
+        factory = functools.partial(
+            make_engine, molecule.numbers, charge=molecule.charge, unpaired_electrons=molecule.unpaired_electrons,
             method=settings.method, backend=settings.engine, solvent=settings.solvent,
             solvation=settings.solvation_model,
         )
+        engine = factory()
+        if cores > 1 and settings.frequencies:
+            pool = GradientPool(factory, cores)  # its workers start while the scan runs
     relaxer = Relaxer(engine, molecule.numbers, deadline, graph_bonds(molecule.mol))
-    coords, energy, hessian, start_evaluations = relax_start(molecule, relaxer, settings)
     scans, failed = [], []
-    for b in bonds:
-        try:
-            scans.append(scan_bond(molecule, b, relaxer, (coords, energy, hessian), settings))
-        except CalculationError as error:
-            log.warning("dihedral %s failed: %s", b.label, error)
-            failed.append((b.label, str(error)))
+    try:
+        coords, energy, hessian, start_evaluations = relax_start(molecule, relaxer, settings)
+        for b in bonds:
+            try:
+                scans.append(scan_bond(molecule, b, relaxer, (coords, energy, hessian), settings, pool))
+            except CalculationError as error:
+                log.warning("dihedral %s failed: %s", b.label, error)
+                failed.append((b.label, str(error)))
+    finally:
+        if pool is not None:
+            pool.close()
     if not scans:
         raise CalculationError("; ".join(f"bond {label}: {reason}" for label, reason in failed))
     return ScanResult(

@@ -71,8 +71,9 @@ class Hessians:
     stationary point at 0 deg) reuses its Hessian; equivalent displacements of a symmetric
     structure are skipped (symmetry.symmetric_hessian)."""
 
-    def __init__(self, gradient_of, masses_amu):
-        self.gradient_of, self.masses = gradient_of, np.asarray(masses_amu, dtype=float)
+    def __init__(self, gradients_at, masses_amu):
+        """gradients_at(reference, structures): gradients (Hartree/Bohr) at displaced structures (Bohr)."""
+        self.gradients_at, self.masses = gradients_at, np.asarray(masses_amu, dtype=float)
         self.done = []  # (coords given, coords used, hessian)
 
     def __call__(self, coords_bohr):
@@ -81,7 +82,7 @@ class Hessians:
             if np.abs(given - coords_bohr).max() < SAME_STRUCTURE_BOHR:
                 return hessian, used
         # atoms are matched by mass: every atom of one element has the same (average) mass here
-        hessian, used, _ = symmetric_hessian(self.gradient_of, np.round(self.masses, 4), self.masses, coords_bohr,
+        hessian, used, _ = symmetric_hessian(self.gradients_at, np.round(self.masses, 4), self.masses, coords_bohr,
                                              FD_STEP_BOHR)
         self.done.append((np.array(coords_bohr, dtype=float), used, hessian))
         return hessian, used
@@ -159,11 +160,28 @@ def readiness(minima, planar, temperatures_k):
     return tuple(records)
 
 
+def displaced_gradients(relaxer, pool=None):
+    """gradients_at(reference, structures) for Hessians: through the pool (engines.pool.GradientPool)
+    or the relaxer's engine, each SCF from the reference's wavefunction where the engine offers that
+    (gradients_from_reference), else one gradient after another; the deadline checked first."""
+    source = pool or relaxer.engine
+    if not hasattr(source, "gradients_from_reference"):
+        return lambda reference, structures: [relaxer.gradient(s) for s in structures]
+
+    def gradients_at(reference, structures):
+        relaxer.check_deadline()
+        return source.gradients_from_reference(reference, structures)
+
+    return gradients_at
+
+
 def add_free_energies(profile, dihedral_atoms, symmetric, relaxer, masses_amu, settings, planar_scis_start=None,
-                      moving_atoms=None):
+                      moving_atoms=None, pool=None):
     """The ProfileAnalysis with vibrations at its minima and maxima, RRHO populations and, when
-    planar_scis_start (coords, hessian) is given (dienes), the planar s-cis record and readiness."""
-    hessians, atoms, temperatures = Hessians(relaxer.gradient, masses_amu), dihedral_atoms, settings.temperatures_k
+    planar_scis_start (coords, hessian) is given (dienes), the planar s-cis record and readiness.
+    pool: an engines.pool.GradientPool for the displaced gradients (default: the relaxer's engine)."""
+    hessians = Hessians(displaced_gradients(relaxer, pool), masses_amu)
+    atoms, temperatures = dihedral_atoms, settings.temperatures_k
     minima = _with_vibrations(profile.minima, _analyse_all(profile.minima, hessians, masses_amu, atoms,
                                                            temperatures, symmetric, moving_atoms))
     maxima = _with_vibrations(profile.maxima, _analyse_all(profile.maxima, hessians, masses_amu, atoms,

@@ -36,9 +36,13 @@ class Relaxer:
         self.deadline = deadline  # time.monotonic() value after which no new gradient is started
         self.bonds = bonds
 
-    def _objective(self, x):
+    def check_deadline(self):
+        """TimeLimitExceeded once the deadline has passed."""
         if self.deadline is not None and time.monotonic() > self.deadline:
             raise TimeLimitExceeded(f"time limit reached after {self.engine.evaluations} gradient evaluations")
+
+    def _objective(self, x):
+        self.check_deadline()
         energy, gradient = self.engine.energy_and_gradient(x.reshape(-1, 3))
         return energy, gradient.ravel()
 

@@ -92,23 +92,27 @@ def displacement_classes(operations, atom_count):
     return classes
 
 
-def symmetric_hessian(gradient_of, numbers, masses, coords_bohr, step_bohr):
+def symmetric_hessian(gradients_at, numbers, masses, coords_bohr, step_bohr):
     """(Hessian (3N, 3N) in the input frame, symmetrised coords (N, 3) in the input frame, gradients
-    used) by central differences over one displacement per class of equivalent displacements."""
+    used) by central differences over one displacement per class of equivalent displacements.
+
+    gradients_at(reference, structures) -> gradients at the structures (all (N, 3), input frame);
+    reference is the undisplaced structure.
+    """
     centre, axes, operations, frame = find_group(numbers, masses, coords_bohr)
     if len(operations) == 1:  # nothing to gain from the frame: displace the structure as given
         centre, axes, frame = np.zeros(3), np.eye(3), np.array(coords_bohr, dtype=float)
     count = len(frame)
-
-    def frame_gradient(frame_coords):
-        return gradient_of(frame_coords @ axes.T + centre) @ axes
-
-    gradients = {}
     classes = displacement_classes(operations, count)
-    for (atom, axis, sign), members in classes:
-        displaced = frame.copy()
-        displaced[atom, axis] += sign * step_bohr
-        gradient = frame_gradient(displaced)
+    displaced = []
+    for (atom, axis, sign), _ in classes:
+        structure = frame.copy()
+        structure[atom, axis] += sign * step_bohr
+        displaced.append(structure @ axes.T + centre)
+    reference = frame @ axes.T + centre
+    gradients = {}
+    for (_, members), gradient in zip(classes, gradients_at(reference, displaced)):
+        gradient = np.asarray(gradient) @ axes  # in the frame
         for image, signs, permutation in members:
             mapped = np.empty_like(gradient)
             mapped[permutation] = gradient * signs
@@ -118,4 +122,4 @@ def symmetric_hessian(gradient_of, numbers, masses, coords_bohr, step_bohr):
     frame_hessian = np.array(columns).T
     frame_hessian = 0.5 * (frame_hessian + frame_hessian.T)
     block = np.kron(np.eye(count), axes)  # frame vector -> input-frame vector
-    return block @ frame_hessian @ block.T, frame @ axes.T + centre, len(classes)
+    return block @ frame_hessian @ block.T, reference, len(classes)

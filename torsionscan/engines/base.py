@@ -81,6 +81,24 @@ class WarmStartEngine:
         energy, gradient = self._read(result)
         return float(energy), np.array(gradient, dtype=float)
 
+    def gradients_from_reference(self, reference_bohr, structures_bohr):
+        """Gradients (N, 3) in Hartree/Bohr at each structure (N, 3) Bohr, every SCF started from the
+        converged wavefunction at reference_bohr (itself computed from scratch): the values do not
+        depend on their order or on which process computes them (finite-difference Hessians)."""
+        reference_bohr = np.ascontiguousarray(reference_bohr, dtype=float)
+        self.evaluations += 1 + len(structures_bohr)
+        try:
+            calculator = self._new_calculator(reference_bohr)
+            reference = calculator.singlepoint()
+            gradients = []
+            for coords in structures_bohr:
+                self._move(calculator, np.ascontiguousarray(coords, dtype=float))
+                gradients.append(np.array(self._read(calculator.singlepoint(reference, copy=True))[1], dtype=float))
+        except self.library_error as error:
+            message = " ".join(str(error).split())
+            raise CalculationError(f"{self.method} SCF failed ({self.name}) at a displaced structure: {message}") from None
+        return gradients
+
     def conjugation(self, coords_bohr, j, k):
         """(Wiberg bond order of atoms j-k or NaN, HOMO-LUMO gap in eV) at coords (N, 3) in Bohr.
 
