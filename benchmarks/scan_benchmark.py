@@ -4,6 +4,7 @@ Run from the repository root:
   python benchmarks/scan_benchmark.py [compound-list.csv]          one molecule at a time
   python benchmarks/scan_benchmark.py --batch [compound-list.csv]  batch throughput
   python benchmarks/scan_benchmark.py --rescore                    DFT re-scoring cost
+  python benchmarks/scan_benchmark.py --stages [compound-list.csv] gradients per stage, 1 and 2 cores
 
 The first prints one row per scanned dihedral and totals, and the time of the MMFF94 residual
 and torsion-term fit relative to the scan. "x gradient" is the whole run (start
@@ -73,13 +74,16 @@ def batch_benchmark(list_path, repeats=3):
             f"{name}-{copy},{smiles}\n" for copy in range(repeats) for name, smiles in compounds))
         count = repeats * len(compounds)
         walls = {}
-        for label, options in (("1 local worker", BatchOptions(workers=1)), ("2 local workers", BatchOptions(workers=2))):
-            summary = run_batch(listing, folder / label.replace(" ", "_"), settings, options)
+        runs = (("1 local worker", BatchOptions(workers=1), settings),
+                ("2 local workers", BatchOptions(workers=2), settings),
+                ("2, no frequencies", BatchOptions(workers=2), torsionscan.ScanSettings(frequencies=False)))
+        for label, options, run_settings in runs:
+            summary = run_batch(listing, folder / label.replace(" ", "_").replace(",", ""), run_settings, options)
             walls[label] = summary.wall_time_s
             with RunStore(summary.out_dir) as store:
                 memory = max(store.compound(name)["peak_memory_mb"] for name in store.names("done"))
                 compute = sum(store.compound(name)["wall_time_s"] for name in store.names("done"))
-            print(f"{label:16s}: {count} compounds in {summary.wall_time_s:6.1f} s = "
+            print(f"{label:17s}: {count} compounds in {summary.wall_time_s:6.1f} s = "
                   f"{3600 * count / summary.wall_time_s:6.0f} compounds/hour; "
                   f"sum of per-compound times {compute:.1f} s; peak memory per worker {memory:.0f} MB")
         began = time.perf_counter()
@@ -91,6 +95,35 @@ def batch_benchmark(list_path, repeats=3):
               f"{3600 * count / summary.wall_time_s:6.0f} compounds/hour (cluster start-up {startup:.1f} s not included)")
     print(f"speed-up 2 vs 1 local workers: {walls['1 local worker'] / walls['2 local workers']:.2f}x")
     print(f"Dask overhead vs 2 local workers: {100 * (walls['dask'] / walls['2 local workers'] - 1):+.0f}%")
+
+
+def stage_benchmark(list_path):
+    """Per compound: gradients of the start structures, of the sweeps with the refinement of the
+    stationary points, and of the frequency stage (with its ratio to the two before it), and the
+    wall time of a whole default scan with 1 and 2 cores (the frequency stage's displaced
+    gradients spread over processes; the results are identical)."""
+    print(f"{'compound':24s} {'atoms':>5s} {'start':>5s} {'scan':>5s} {'freq':>5s} {'freq/scan':>9s} "
+          f"{'wall 1 core':>11s} {'wall 2 cores':>12s}")
+    totals = {"scan": 0, "freq": 0, 1: 0.0, 2: 0.0}
+    ratios = []
+    for name, smiles in read_list(list_path):
+        walls = {}
+        for cores in (1, 2):
+            began = time.perf_counter()
+            result = torsionscan.scan(smiles, name=name, cores=cores)
+            walls[cores] = time.perf_counter() - began
+            totals[cores] += walls[cores]
+        scanned = result.start_gradient_evaluations + sum(b.gradient_evaluations_total for b in result.bonds)
+        frequencies = sum(b.frequency_gradient_evaluations for b in result.bonds)
+        totals["scan"] += scanned
+        totals["freq"] += frequencies
+        ratios.append(frequencies / scanned)
+        print(f"{name:24s} {len(result.symbols):5d} {result.start_gradient_evaluations:5d} "
+              f"{scanned - result.start_gradient_evaluations:5d} {frequencies:5d} {frequencies / scanned:9.2f} "
+              f"{walls[1]:10.1f}s {walls[2]:11.1f}s")
+    print(f"all: frequency gradients / (start + scan) {totals['freq'] / totals['scan']:.2f} (max per compound "
+          f"{max(ratios):.2f}); wall 1 core {totals[1]:.0f} s, 2 cores {totals[2]:.0f} s "
+          f"({totals[2] / totals[1]:.2f}x)")
 
 
 def rescore_benchmark(threads=2):
@@ -122,8 +155,11 @@ def main(argv):
     if "--rescore" in argv:
         rescore_benchmark()
         return
-    arguments = [a for a in argv[1:] if a != "--batch"]
+    arguments = [a for a in argv[1:] if a not in ("--batch", "--stages")]
     list_path = Path(arguments[0]) if arguments else Path("inputs/demo_compounds.csv")
+    if "--stages" in argv:
+        stage_benchmark(list_path)
+        return
     if "--batch" in argv:
         batch_benchmark(list_path)
         return
