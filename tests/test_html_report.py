@@ -113,12 +113,6 @@ class Page(HTMLParser):
             self.scripts[-1] += data
 
 
-def without_library(page):
-    """The page without the vendored viewer library (3Dmol.js names the addresses of its optional
-    download functions, which the report never calls)."""
-    return re.sub(r'<script id="viewer-library">.*?</script>', "", page, flags=re.S)
-
-
 def parse(page):
     parser = Page()
     parser.feed(page)
@@ -538,7 +532,7 @@ def test_the_run_report_is_rebuilt_from_the_store(tmp_path, model_scan):
     assert parsed.errors == []
     assert MODEL_CAUTION in "".join(parsed.texts)  # the caution of the results, not a fixed GFN text
     assert "<script>alert" not in page and "no conjugated single bond &lt;here&gt;" in page
-    assert "http://" not in without_library(page) and "https://" not in without_library(page)
+    assert "http://" not in page and "https://" not in page
     assert (out / "overview.png").stat().st_size > 0
     # everything comes back from the database alone
     for path in [report, out / "scan_table.csv", out / "overview.png", *folder.iterdir()]:
@@ -565,7 +559,7 @@ def test_the_report_card_shows_the_drawing_and_what_each_bond_says(tmp_path, mod
     report, _ = write_run_report(out)
     page = report.read_text()
     parsed = parse(page)
-    assert parsed.errors == [] and "http://" not in without_library(page) and "https://" not in without_library(page)
+    assert parsed.errors == [] and "http://" not in page and "https://" not in page
     sections = {key[len("c-"):]: section for key, section in parsed.sections.items()}
     butadiene, biaryl = sections["butadiene"], sections["biaryl"]
     (bond,) = filled.bonds
@@ -611,3 +605,24 @@ def test_a_formula_name_is_text_in_the_run_table(tmp_path, model_scan):
     assert rows[1]["note"] == "-5"  # a number stays a number
     assert float(rows[0]["rotation_max_kcal_mol"]) == pytest.approx(5.30, abs=0.01)
     assert "\n=" not in text and ",=" not in text
+
+
+def test_the_viewer_library_is_embedded_once_and_names_no_address(tmp_path, model_scan):
+    from torsionscan.output.viewer import library_script
+
+    out = tmp_path / "run"
+    with RunStore(out) as store:
+        store.claim_settings(MODEL_SETTINGS.as_dict(), "list.csv")
+        store.add_compounds([CompoundEntry(name=n, where="l", smiles="C=CC=C", extra={}) for n in ("a", "b")])
+        session = store.start_session("t")
+        for name in ("a", "b"):
+            store.record_done(name, model_scan, session, 1.0)
+    report, _ = write_run_report(out)
+    page = report.read_text()
+    assert page.count('<script id="viewer-library">') == 1 and library_script() in page
+    assert page.count('class="scan-viewer"') == 2  # one 3-D view per compound and bond
+    # the library's own download addresses are written with escaped slashes: the same JavaScript strings
+    assert "http://" not in page and "https://" not in page and "https:\\/\\/files.rcsb.org" in page
+    parsed = parse(page)
+    thumbs = [attrs for tag, attrs in parsed.starts if tag == "img" and "thumb" in (attrs.get("class") or "")]
+    assert len(thumbs) == 2 and all(t["src"].startswith("data:image/png;base64,") for t in thumbs)

@@ -22,6 +22,8 @@ from ..quality import FLAG_MEANINGS
 from .viewer import LIBRARY_NAME, VIEWER_SCRIPT, VIEWER_STYLE, library_script, viewer_block
 
 MISSING = "\u2014"  # em dash, shown for None and NaN
+# a 1 x 1 transparent PNG: the table's drawing until the page script copies the card's image in
+_BLANK_PNG = ("data:image/png;base64,iVBORw0KGgoAAAANSUhEUgAAAAEAAAABCAQAAAC1HAwCAAAAC0lEQVR42mNkYAAAAAYAAjCB0C8AAAAASUVORK5CYII=")
 
 _STYLE = """
 :root { color-scheme: light; }
@@ -64,7 +66,8 @@ table.results td.col-population_model, table.results td.col-scis_meaning { white
 table.results td.col-flags { color: #8a5a00; }
 table.results td.col-name a { display: inline-flex; align-items: center; gap: 0.4rem; }
 table.results img.thumb { height: 60px; width: auto; border: none; background: #fff; }
-table.results img.thumb:not([src]) { display: none; }
+table.results img.thumb[data-drawing] { display: none; }
+table.results img.thumb.shown { display: inline; }
 table.results thead th:hover, table.results thead th:focus { background: #e6e8eb; }
 table.results thead th[aria-sort="ascending"]::after { content: " \\25B2"; font-size: 0.7em; }
 table.results thead th[aria-sort="descending"]::after { content: " \\25BC"; font-size: 0.7em; }
@@ -161,7 +164,7 @@ _SCRIPT = """
   // the table's small drawings reuse the cards' images (each drawing is embedded once)
   Array.prototype.forEach.call(document.querySelectorAll("img.thumb[data-drawing]"), function (thumb) {
     var source = document.getElementById(thumb.getAttribute("data-drawing"));
-    if (source) { thumb.src = source.src; }
+    if (source) { thumb.src = source.src; thumb.classList.add("shown"); }
   });
   // click a figure to see it at full size, click again (or Escape) to close
   function closeZoom() { var z = document.querySelector(".zoom"); if (z) { z.remove(); } }
@@ -418,7 +421,7 @@ def _results_table(columns, rows, slugs, drawings=()):
                 content = MISSING
             elif key == "name":
                 slug = slugs[row.get("name")]
-                thumb = (f'<img class="thumb" data-drawing="draw-{slug}" alt="">'
+                thumb = (f'<img class="thumb" src="{_BLANK_PNG}" data-drawing="draw-{slug}" alt="">'
                          if row.get("name") in drawings else "")
                 content = f'<a href="#c-{slug}">{thumb}{_e(text)}</a>'
             else:
