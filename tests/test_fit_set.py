@@ -72,6 +72,17 @@ def test_joint_fit_recovers_shared_terms_with_own_offsets():
     assert single.terms == fit_joint_terms(angles[:1], targets[:1]).terms
 
 
+@pytest.mark.parametrize("free_phases", [False, True])
+def test_zeroed_terms_have_phase_0_whatever_the_sign_left_by_rounding(free_phases):
+    """A coefficient of -1e-13 kcal/mol (rounding noise) is written as k = 0 with phase 0, not phase 180."""
+    angles = np.arange(-180.0, 180.0, 15.0)
+    target = term_energy(TRUTH, angles) - 1e-13 * np.cos(np.radians(4 * angles))
+    fit = fit_joint_terms([angles], [target], 4, free_phases)
+    (fourth,) = [t for t in fit.terms if t.periodicity == 4]
+    assert (fourth.k_kcal_mol, fourth.phase_deg) == (0.0, 0.0)
+    assert {t.phase_deg for t in fit.terms if t.periodicity == 2} == {180.0}  # a real negative term keeps 180
+
+
 def test_mmff94_types_are_symmetric_under_reversal_and_named_in_two_characters():
     assert mmff94_type((2, 2, 3, 7))[:3] == mmff94_type((7, 3, 2, 2))[:3] == (
         "2-2-3-7", ("A2", "A2", "A3", "A7"), "MMFF94 atom types 2-2-3-7")

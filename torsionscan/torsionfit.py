@@ -111,10 +111,13 @@ def fit_joint_terms(angle_lists, target_lists, max_periodicity=DEFAULT_MAX_PERIO
     terms = []
     for periodicity, a, b in zip(n, cos_part, sin_part):
         k = math.hypot(a, b)
-        phase = math.degrees(math.atan2(b, a)) % 360.0 if k > _ZERO_K else 0.0
-        if not free_phases:
+        if k <= _ZERO_K:  # a zeroed term has phase 0 whatever the sign of the rounding left in a, b
+            k, phase = 0.0, 0.0
+        elif free_phases:
+            phase = math.degrees(math.atan2(b, a)) % 360.0
+        else:
             phase = 0.0 if a >= 0 else 180.0
-        terms.append(TorsionTerm(int(periodicity), phase, k if k > _ZERO_K else 0.0))
+        terms.append(TorsionTerm(int(periodicity), phase, k))
     terms = tuple(terms)
     total_k = sum(t.k_kcal_mol for t in terms)
     constants = tuple(float(target_mean - design_mean @ coefficients) - total_k for design_mean, target_mean in means)
