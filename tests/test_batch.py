@@ -414,4 +414,4 @@ def test_a_refining_worker_keeps_its_finished_optimisations_in_the_run_folder(tm
         store.add_compounds([CompoundEntry(name="butadiene", where="line 2", smiles="C=CC=C")])
         job = make_job(store.compound("butadiene"), FAST_SETTINGS, BatchOptions(refine="cheap"), tmp_path / "run")
     assert scan_compound(job)["status"] == "done"
-    assert seen == [tmp_path / "run" / "refinement_points.sqlite"]
+    assert seen == [(tmp_path / "run").resolve() / "refinement_points.sqlite"]

@@ -155,6 +155,9 @@ def _refined(result, job):
                                threads=job["threads"], cache=cache), ""
     except (TorsionScanError, ValueError) as error:  # keep the finished scan; say why the refinement is missing
         return result, f"refinement at {job['refine']} failed: {error}"
+    finally:
+        if cache is not None:
+            cache.close()
 
 
 def _fitted(result, job):
@@ -173,9 +176,12 @@ def _fitted(result, job):
 
 
 def make_job(record, settings, options, out_dir=None):
-    """The picklable work item of one compound (record: RunStore.compound); refinements keep their
-    finished optimisations in out_dir's checkpoint file."""
-    checkpoint = str(Path(out_dir) / CHECKPOINT_FILE) if options.refine and out_dir is not None else None
+    """The picklable work item of one compound (record: RunStore.compound); refinements by local
+    workers keep their finished optimisations in out_dir's checkpoint file (Dask workers, which may
+    not share this file system, keep none)."""
+    checkpoint = None
+    if options.refine and out_dir is not None and not options.cluster:
+        checkpoint = str(Path(out_dir).resolve() / CHECKPOINT_FILE)
     return {"name": record["name"], "input": record["input"], "settings": settings,
             "time_limit_s": options.timeout_per_compound_s, "rescore": options.rescore,
             "refine": options.refine, "refine_points": options.refine_points, "threads": options.threads_per_worker,

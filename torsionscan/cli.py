@@ -414,8 +414,9 @@ def run_scan(args):
     if refine_level is not None:
         from .workflows import checkpoint_for, refine_with_dft
 
-        result = refine_with_dft(result, refine_level, args.refine_points, args.reference, args.processes,
-                                 cache=checkpoint_for(out_dir))
+        with checkpoint_for(out_dir) as cache:
+            result = refine_with_dft(result, refine_level, args.refine_points, args.reference, args.processes,
+                                     cache=cache)
     write_results(result, out_dir)
     print(format_summary(result, out_dir))
     if args.fit_for:

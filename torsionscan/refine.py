@@ -17,10 +17,12 @@ resumes where it stopped. Free energies carry the scan's thermal corrections ove
 (THERMAL_NOTE): a Hessian at a DFT level costs 6N gradients per stationary point.
 """
 
+import logging
 import math
 import multiprocessing
 import time
 from concurrent.futures import ProcessPoolExecutor
+from concurrent.futures.process import BrokenProcessPool
 from dataclasses import replace
 
 import numpy as np
@@ -41,7 +43,9 @@ from .relax import Relaxer, RelaxJob
 from .relaxcache import relaxation_key
 from .rescore import disagreement
 from .units import wrap_deg
+from .version import __version__
 
+log = logging.getLogger(__name__)
 POINT_MODES = ("all", "stationary")
 THERMAL_NOTE = ("thermal corrections (G - E) and frequencies of the scan's stationary point of the same kind "
                 "nearest in angle, carried over: no Hessian is computed at the refined level")
@@ -49,7 +53,7 @@ THERMAL_NOTE = ("thermal corrections (G - E) and frequencies of the scan's stati
 
 def _relax(task):
     """One relaxation at the refined level (in this or a worker process): the OptimizationResult,
-    or the CalculationError with the gradients it used as `evaluations`."""
+    or a CalculationError with the gradients it used as `evaluations`."""
     engine_factory, numbers, bonds, job = task
     engine = engine_factory()
     try:
@@ -58,25 +62,37 @@ def _relax(task):
     except CalculationError as error:
         error.evaluations = engine.evaluations
         return error
+    except Exception as error:  # a fault of the calculation library fails this point only
+        failure = CalculationError(f"{type(error).__name__} in the calculation: {error}")
+        failure.evaluations = engine.evaluations
+        return failure
 
 
 class Relaxations:
     """relax_many for a refinement (see driver.BondScanner): finished relaxations read from the
     checkpoint cache, the others run in parallel spawned processes (each building its own engine
-    from the picklable engine_factory) and stored as they finish. Use as a context manager."""
+    from the picklable engine_factory) and stored as they finish. Use as a context manager.
 
-    def __init__(self, engine_factory, numbers, bonds, level_label, processes=1, cache=None, start_tag=""):
-        self.engine_factory, self.numbers, self.bonds, self.level = engine_factory, numbers, bonds, level_label
-        self.processes, self.cache, self.start_tag = processes, cache, start_tag
-        self.evaluations = 0  # gradients of every relaxation returned, read from the cache or not
+    identity: what besides the job determines a result (level, charge, spin, program version);
+    start_engine: the scan-level engine whose finite-difference Hessian starts jobs given with
+    scan_level_start (computed only for jobs not in the cache).
+    """
+
+    def __init__(self, engine_factory, numbers, bonds, identity, processes=1, cache=None, start_engine=None):
+        self.engine_factory, self.numbers, self.bonds, self.identity = engine_factory, numbers, bonds, identity
+        self.processes, self.cache, self.start_engine = processes, cache, start_engine
+        self.evaluations = 0  # refined-level gradients of every relaxation returned, read from the cache or not
         self._pool = None
 
     def __enter__(self):
         return self
 
-    def __exit__(self, *exc):
+    def __exit__(self, kind, *exc):
         if self._pool is not None:
-            self._pool.shutdown(wait=True, cancel_futures=True)
+            if kind is not None:  # do not wait for the other optimisations of a failed refinement
+                for process in list(getattr(self._pool, "_processes", {}).values()):
+                    process.terminate()
+            self._pool.shutdown(wait=kind is None, cancel_futures=True)
         return False
 
     def _run(self, jobs):
@@ -87,16 +103,36 @@ class Relaxations:
         if self._pool is None:
             self._pool = ProcessPoolExecutor(max_workers=self.processes,
                                              mp_context=multiprocessing.get_context("spawn"))
-        yield from self._pool.map(_relax, tasks)
+        try:
+            yield from self._pool.map(_relax, tasks)
+        except BrokenProcessPool:
+            raise CalculationError("a refinement process died (out of memory, or a crash in the calculation "
+                                   "library); finished optimisations are kept: rerun with fewer --processes") from None
 
-    def __call__(self, jobs):
-        keys = [relaxation_key(self.level, self.numbers, job, self.start_tag) for job in jobs]
+    def _start_hessian(self, coords):
+        """The scan level's finite-difference Hessian at coords, or None (model Hessian) if it fails."""
+        try:
+            return start_hessians(self.start_engine, [coords])[0]
+        except CalculationError as error:
+            log.warning("no %s start Hessian (%s); the model Hessian starts this optimisation",
+                        self.start_engine.method, error)
+            return None
+
+    def __call__(self, jobs, scan_level_start=False):
+        """Results of the jobs in order (OptimizationResult or CalculationError); scan_level_start:
+        the jobs' start Hessians are to be the start engine's (job.hessian is ignored)."""
+        start = (f"start Hessian: {self.start_engine.method} finite differences" if scan_level_start
+                 else "start Hessian: given")
+        keys = [relaxation_key(self.identity, self.numbers, job, start) for job in jobs]
         results = [self.cache.get(key) if self.cache else None for key in keys]
         todo = [n for n, result in enumerate(results) if result is None]
+        if scan_level_start:
+            jobs = [replace(job, hessian=self._start_hessian(job.coords_bohr)) if n in todo else job
+                    for n, job in enumerate(jobs)]
         for n, result in zip(todo, self._run([jobs[n] for n in todo])):
             results[n] = result
             if self.cache and not isinstance(result, CalculationError):
-                self.cache.put(keys[n], self.level, result)
+                self.cache.put(keys[n], self.identity, result)
         self.evaluations += sum(getattr(r, "evaluations", 0) for r in results)
         return results
 
@@ -143,7 +179,7 @@ def _planar_record(energy, coords, converged, how):
     return StationaryRecord("planar s-cis", 0.0, 0.0, energy, how, converged, coords)
 
 
-def _refine_all(result, bond, relaxations, start_engine):
+def _refine_all(result, bond, relaxations):
     """(points, analysis, disagreement) with every computed grid point re-optimised."""
     settings, numbers = result.settings, relaxations.numbers
     sources = bond.relaxed_points
@@ -151,12 +187,10 @@ def _refine_all(result, bond, relaxations, start_engine):
     scanner = BondScanner(molecule, TorsionBond(bond.dihedral_atoms, bond.conjugated),
                           Relaxer(relaxations.engine_factory(), numbers, bonds=relaxations.bonds), settings,
                           relaxations)
-    hessians = start_hessians(start_engine, [p.coords_bohr for p in sources])
-    jobs = [RelaxJob(p.coords_bohr, settings.point_convergence, h,
-                     (DihedralConstraint(bond.dihedral_atoms, math.radians(p.angle_deg)),))
-            for p, h in zip(sources, hessians)]
+    jobs = [RelaxJob(p.coords_bohr, settings.point_convergence, None,
+                     (DihedralConstraint(bond.dihedral_atoms, math.radians(p.angle_deg)),)) for p in sources]
     energies = []
-    for source, outcome in zip(sources, relaxations(jobs)):
+    for source, outcome in zip(sources, relaxations(jobs, scan_level_start=True)):
         index = (int(round(source.angle_deg / settings.step_deg)),)
         if isinstance(outcome, CalculationError):
             point = replace(source, measured_angle_deg=math.nan, energy_hartree=math.nan, converged=False,
@@ -188,8 +222,7 @@ def _refine_all(result, bond, relaxations, start_engine):
 
 def _stationary_targets(result, bond):
     """(record, held angle or None, how) of the scan's minima, barrier tops and (dienes) planar
-    s-cis; on a symmetric profile only one of each mirror pair, with its image's record after it
-    as (record, "mirror", None)."""
+    s-cis (mirror images included: _refine_stationary optimises each pair once)."""
     scanned = bond.profile
     targets = [(m, None, "free optimisation") for m in scanned.minima]
     targets += [(m, m.angle_deg, "held at the scan's angle") for m in scanned.maxima]
@@ -211,7 +244,7 @@ def _job_key(kind, angle, held, symmetric):
     return ("held", round(angle, 6)) if held is not None else ("free", kind, round(angle, 6))
 
 
-def _refine_stationary(result, bond, relaxations, start_engine):
+def _refine_stationary(result, bond, relaxations):
     """The analysis with only the scan's stationary points (and planar s-cis) re-optimised; on a
     symmetric profile each mirror pair costs one optimisation."""
     settings = result.settings
@@ -222,13 +255,12 @@ def _refine_stationary(result, bond, relaxations, start_engine):
         if key not in distinct or (record.angle_deg >= 0 and distinct[key][0].angle_deg < 0):
             distinct[key] = (record, held)
     keys = list(distinct)
-    hessians = start_hessians(start_engine, [distinct[k][0].coords_bohr for k in keys])
     jobs = []
-    for key, hessian in zip(keys, hessians):
+    for key in keys:
         record, held = distinct[key]
         held_at = () if held is None else (DihedralConstraint(bond.dihedral_atoms, math.radians(held)),)
-        jobs.append(RelaxJob(record.coords_bohr, settings.refine_convergence, hessian, held_at))
-    outcomes = dict(zip(keys, relaxations(jobs)))
+        jobs.append(RelaxJob(record.coords_bohr, settings.refine_convergence, None, held_at))
+    outcomes = dict(zip(keys, relaxations(jobs, scan_level_start=True)))
     records, planar = [], None
     for record, held, how in targets:
         key = _job_key(record.kind, record.angle_deg, held, bond.symmetric)
@@ -279,18 +311,28 @@ def refine_result(result, engine_factory, level_label, level_reference="", point
         raise InputError(f"--refine-points {points_mode!r}: choose {' or '.join(POINT_MODES)}")
     start_engine = start_engine or scan_level_engine(result)
     numbers = np.array([a.GetAtomicNum() for a in result.mol.GetAtoms()])
-    bonds = []
+    identity = (f"{level_label}; charge {result.charge}; unpaired {result.unpaired_electrons}; "
+                f"torsionscan {__version__}")
+    bonds, failures = [], []
     for bond in result.bonds:
         started = time.perf_counter()
-        with Relaxations(engine_factory, numbers, graph_bonds(result.mol), level_label, processes, cache,
-                         f"start Hessian: {start_engine.method} finite differences") as relaxations:
-            if points_mode == "all":
-                points, analysis, verdict = _refine_all(result, bond, relaxations, start_engine)
-            else:
-                points, analysis, verdict = (), _refine_stationary(result, bond, relaxations, start_engine), None
+        try:
+            with Relaxations(engine_factory, numbers, graph_bonds(result.mol), identity, processes, cache,
+                             start_engine) as relaxations:
+                if points_mode == "all":
+                    points, analysis, verdict = _refine_all(result, bond, relaxations)
+                else:
+                    points, analysis, verdict = (), _refine_stationary(result, bond, relaxations), None
+        except CalculationError as error:  # this bond keeps its scan; the others are still refined
+            log.warning("bond %s: refinement at %s failed: %s", bond.label, level_label, error)
+            failures.append(f"bond {bond.label}: {error}")
+            bonds.append(bond)
+            continue
         refined = RefinedProfile(level_label, level_reference, points_mode, points, analysis, verdict,
                                  relaxations.evaluations, time.perf_counter() - started, THERMAL_NOTE)
         bonds.append(replace(bond, refined=refined))
+    if len(failures) == len(result.bonds):
+        raise CalculationError("; ".join(failures))
     return replace(result, bonds=tuple(bonds))
 
 

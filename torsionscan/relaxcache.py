@@ -4,9 +4,9 @@ interrupted refinement resumes without recomputing the points it had finished.
 The key is a SHA-256 digest of a level label, the atomic numbers, the start coordinates (exact
 float64 bytes), the constraints (atoms and targets), the convergence thresholds and a tag for
 how the start Hessian was made; a later run with the same inputs reads the stored result back
-bit for bit. Only converged or not, finished optimisations are stored: a failure is computed
+bit for bit. Finished optimisations (converged or not) are stored: a failure is computed
 again. Several processes may write the same file (SQLite locking). The file is disposable: an
-unreadable one is reported once and the refinement goes on without it.
+unreadable one, or a row that does not fit, is reported once and the refinement goes on without it.
 """
 
 import hashlib
@@ -53,9 +53,7 @@ class RelaxationCache:
                 self._connection.execute(_SCHEMA)
                 self._connection.commit()
             except (sqlite3.Error, OSError) as error:
-                log.warning("refinement checkpoint %s cannot be used (%s); finished points will not be kept",
-                            self.path, error)
-                self._broken, self._connection = True, None
+                self._give_up(f"cannot be used ({error})")
         return self._connection
 
     def get(self, key):
@@ -68,12 +66,15 @@ class RelaxationCache:
                 "SELECT atoms, energy_hartree, converged, evaluations, max_gradient, rms_gradient, x, gradient, "
                 "hessian FROM relaxations WHERE key = ?", (key,)).fetchone()
         except sqlite3.Error as error:
-            log.warning("refinement checkpoint %s unreadable (%s); computing again", self.path, error)
+            self._give_up(f"unreadable ({error})")
             return None
         if row is None:
             return None
         atoms, energy, converged, evaluations, max_gradient, rms_gradient, x, gradient, hessian = row
         size = 3 * atoms
+        if (len(x), len(gradient), len(hessian)) != (8 * size, 8 * size, 8 * size * size):
+            self._give_up("holds a row of the wrong size")
+            return None
         return OptimizationResult(
             x=np.frombuffer(x, dtype=np.float64).copy(), energy=energy,
             gradient=np.frombuffer(gradient, dtype=np.float64).copy(),
@@ -96,9 +97,21 @@ class RelaxationCache:
                      np.ascontiguousarray(result.gradient, dtype=np.float64).tobytes(),
                      np.ascontiguousarray(result.hessian, dtype=np.float64).tobytes()))
         except sqlite3.Error as error:
-            log.warning("refinement checkpoint %s cannot be written (%s); this point will not be kept", self.path, error)
+            self._give_up(f"cannot be written ({error})")
+
+    def _give_up(self, why):
+        log.warning("refinement checkpoint %s %s; going on without it", self.path, why)
+        self.close()
+        self._broken = True
 
     def close(self):
         if self._connection is not None:
             self._connection.close()
             self._connection = None
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *exc):
+        self.close()
+        return False

@@ -169,6 +169,7 @@ def refine_folder(folder, level_text, points_mode="all", reference=None, process
     """Refine every bond of a result folder at a DFT level; rewrites the folder, returns the ScanResult."""
     result = read_result(folder)
     level = check_refinement(level_text, result.settings, points_mode, reference)
-    result = refine_with_dft(result, level, points_mode, reference, processes, cache=checkpoint_for(folder))
+    with checkpoint_for(folder) as cache:
+        result = refine_with_dft(result, level, points_mode, reference, processes, cache=cache)
     write_results(result, folder)
     return result

@@ -92,8 +92,15 @@ class WarmStartEngine:
             reference = calculator.singlepoint()
             gradients = []
             for coords in structures_bohr:
-                self._move(calculator, np.ascontiguousarray(coords, dtype=float))
-                gradients.append(np.array(self._read(calculator.singlepoint(reference, copy=True))[1], dtype=float))
+                coords = np.ascontiguousarray(coords, dtype=float)
+                self._move(calculator, coords)
+                try:
+                    result = calculator.singlepoint(reference, copy=True)
+                except self.library_error:  # the reference guess stalled this SCF: once more from scratch
+                    self.evaluations += 1
+                    calculator = self._new_calculator(coords)
+                    result = calculator.singlepoint()
+                gradients.append(np.array(self._read(result)[1], dtype=float))
         except self.library_error as error:
             message = " ".join(str(error).split())
             raise CalculationError(f"{self.method} SCF failed ({self.name}) at a displaced structure: {message}") from None

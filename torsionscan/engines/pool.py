@@ -1,7 +1,7 @@
 """Gradients at displaced structures of one molecule, spread over worker processes.
 
 Each worker builds its own engine once (engine_factory, picklable) and answers
-gradients_from_reference for its share of the structures. Every SCF starts from the reference
+gradients_from_reference for its share of the structures (at least MIN_SHARE of them). Every SCF starts from the reference
 structure's converged wavefunction, so the gradients are bit for bit those of one process doing
 them all. Workers are spawned when the pool is made, so their start-up overlaps the caller's work.
 """
@@ -15,18 +15,25 @@ import numpy as np
 from ..errors import CalculationError
 
 _ENGINE = None  # this worker process's engine
+_START_ERROR = ""  # why it could not be built
+MIN_SHARE = 8  # fewest structures worth a process (each share pays one reference SCF)
 
 
 def _start(engine_factory):
-    global _ENGINE
-    _ENGINE = engine_factory()
+    global _ENGINE, _START_ERROR
+    try:
+        _ENGINE = engine_factory()
+    except Exception as error:  # reported by the parent in one line, not as a worker traceback
+        _START_ERROR = f"{type(error).__name__}: {error}"
 
 
 def _ready():
-    return _ENGINE is not None
+    return _START_ERROR
 
 
 def _share(reference_bohr, structures_bohr):
+    if _ENGINE is None:
+        raise CalculationError(f"a gradient worker could not build its engine ({_START_ERROR})")
     return _ENGINE.gradients_from_reference(reference_bohr, structures_bohr)
 
 
@@ -42,7 +49,8 @@ class GradientPool:
 
     def gradients_from_reference(self, reference_bohr, structures_bohr):
         """Gradients (N, 3) at each structure, in order (see WarmStartEngine.gradients_from_reference)."""
-        shares = [s for s in np.array_split(np.arange(len(structures_bohr)), self.processes) if len(s)]
+        count = max(1, min(self.processes, len(structures_bohr) // MIN_SHARE))
+        shares = [s for s in np.array_split(np.arange(len(structures_bohr)), count) if len(s)]
         futures = [self._pool.submit(_share, reference_bohr, [structures_bohr[i] for i in share]) for share in shares]
         self.evaluations += len(shares) + len(structures_bohr)
         try:
