@@ -14,11 +14,13 @@ bond_residual is the one place the quantum and MM profiles of a bond are put sid
 per-bond fit here and the fit of torsion types across molecules (torsiontypes) both start there.
 """
 
+import math
 import time
 from dataclasses import dataclass
 
 import numpy as np
 
+from . import geometry
 from .errors import InputError
 from .mm import Mmff94
 from .records import FitOptions, TorsionFit
@@ -36,6 +38,8 @@ class BondResidual:
     qm_kcal_mol: the quantum profile there, relative to its own zero; mm_without_kcal_mol and
     mm_full_kcal_mol (None for user energies): absolute MM energies at the same structures.
     residual = qm - mm_without is what torsion terms on dihedral_atoms have to supply.
+    frames_angstrom and mirrored: the structure of each point (a mirrored point holds its mirror
+    image's structure), for the angles of other quartets at the same points (dihedral_deg).
     """
 
     profile_label: str  # the method or level of the quantum energies
@@ -47,6 +51,13 @@ class BondResidual:
     qm_kcal_mol: np.ndarray
     mm_without_kcal_mol: np.ndarray
     mm_full_kcal_mol: np.ndarray | None
+    frames_angstrom: tuple = ()
+    mirrored: tuple = ()
+
+    def dihedral_deg(self, atoms):
+        """The dihedral of any four atoms (0-based) at every point, degrees (mirrored points negated)."""
+        values = [math.degrees(geometry.dihedral(frame, *atoms)) for frame in self.frames_angstrom]
+        return np.array([-v if m else v for v, m in zip(values, self.mirrored)])
 
     @property
     def residual_kcal_mol(self):
@@ -70,7 +81,7 @@ def _scan_points(result, bond, quantum):
             raise InputError(f"bond {bond.label} has no re-scored energies; run 'torsionscan rescore' first")
         label, qm = rescored.level, [rescored.analysis.relative_kcal_mol(rescored.energies_hartree[n]) for _, n in pairs]
     angles = [-relaxed[n].measured_angle_deg if p.mirrored else p.measured_angle_deg for p, n in pairs]
-    return label, np.array(qm), np.array(angles), [n for _, n in pairs]
+    return label, np.array(qm), np.array(angles), [n for _, n in pairs], tuple(bool(p.mirrored) for p, _ in pairs)
 
 
 def _refined_points(bond):
@@ -107,8 +118,9 @@ def bond_residual(result, bond, quantum="gfn", mm_energies=None, mm_label=None):
         angles = np.array([p.measured_angle_deg for p in points])
         frames = [p.coords_bohr * BOHR_ANGSTROM for p in points]
         rows = list(range(len(points)))
+        mirrored = (False,) * len(points)  # refined mirror images are optimised from mirrored structures
     else:
-        label, qm, angles, rows = _scan_points(result, bond, quantum)
+        label, qm, angles, rows, mirrored = _scan_points(result, bond, quantum)
         frames = [p.coords_bohr * BOHR_ANGSTROM for p in bond.relaxed_points]
     if mm_energies is not None and len(mm_energies) != len(frames):
         raise InputError(f"{len(mm_energies)} MM energies for the {len(frames)} relaxed frames of bond {bond.label}; "
@@ -130,6 +142,7 @@ def bond_residual(result, bond, quantum="gfn", mm_energies=None, mm_label=None):
         mmff_types=mmff.types(atoms) if mmff else None,
         removed_torsions=tuple(mmff.quartets) if mmff and mm_energies is None else (),
         angles_deg=angles, qm_kcal_mol=qm, mm_without_kcal_mol=without[rows], mm_full_kcal_mol=full,
+        frames_angstrom=tuple(frames[n] for n in rows), mirrored=mirrored,
     )
 
 

@@ -54,6 +54,13 @@ def term_energy(terms, angle_deg):
     return total
 
 
+def quartet_term_energy(terms, angle_deg):
+    """The terms summed over several dihedrals per point: angle_deg of shape (points, dihedrals)
+    (a 1-D array is one dihedral per point), kcal/mol per point."""
+    angles = np.asarray(angle_deg, dtype=float)
+    return term_energy(terms, angles).reshape(angles.shape[0], -1).sum(axis=1)
+
+
 def fit_terms(angle_deg, target_kcal_mol, max_periodicity=DEFAULT_MAX_PERIODICITY, free_phases=False,
               weights=None, ridge=RIDGE):
     """Least-squares terms n = 1..max_periodicity for target(phi) ~ constant + sum of terms."""
@@ -77,6 +84,10 @@ def fit_joint_terms(angle_lists, target_lists, max_periodicity=DEFAULT_MAX_PERIO
     terms, one free constant c_p per profile. Weights per point (default 1); the ridge penalty is
     relative to the summed weights of all profiles and applies to the shared coefficients only.
 
+    A profile's angles are one dihedral per point (1-D) or several, shape (points, dihedrals): the
+    terms then act on every one of them and the model is their sum (the same terms on each atom
+    quartet of a type about a bond, as a force field keyed by atom classes applies them).
+
     The constants carry no penalty, so each is the weighted mean of its profile's misfit: solving for
     the shared coefficients on profiles centred by their weighted means is the same least-squares
     problem without one column per profile (which keeps many profiles and leave-one-out refits cheap).
@@ -89,16 +100,18 @@ def fit_joint_terms(angle_lists, target_lists, max_periodicity=DEFAULT_MAX_PERIO
     designs, centred_designs, centred_targets, means, weights = [], [], [], [], []
     for p, (angles, target) in enumerate(zip(angle_lists, target_lists)):
         phi = np.radians(np.asarray(angles, dtype=float))
+        phi = phi.reshape(phi.shape[0], -1)  # (points, dihedrals)
         target = np.asarray(target, dtype=float)
-        w = np.ones_like(phi) if weight_lists is None else np.asarray(weight_lists[p], dtype=float)
-        design = np.cos(np.outer(phi, n))
+        w = np.ones(phi.shape[0]) if weight_lists is None else np.asarray(weight_lists[p], dtype=float)
+        multiples = phi[:, :, None] * n  # (points, dihedrals, periodicities)
+        design = np.cos(multiples).sum(axis=1)
         if free_phases:
-            design = np.hstack([design, np.sin(np.outer(phi, n))])
+            design = np.hstack([design, np.sin(multiples).sum(axis=1)])
         design_mean, target_mean = w @ design / w.sum(), w @ target / w.sum()
         designs.append(design)
         centred_designs.append(design - design_mean)
         centred_targets.append(target - target_mean)
-        means.append((design_mean, target_mean))
+        means.append((design_mean, target_mean, phi.shape[1]))
         weights.append(w)
     w = np.concatenate(weights)
     root_w = np.sqrt(w)
@@ -120,7 +133,8 @@ def fit_joint_terms(angle_lists, target_lists, max_periodicity=DEFAULT_MAX_PERIO
         terms.append(TorsionTerm(int(periodicity), phase, k))
     terms = tuple(terms)
     total_k = sum(t.k_kcal_mol for t in terms)
-    constants = tuple(float(target_mean - design_mean @ coefficients) - total_k for design_mean, target_mean in means)
+    constants = tuple(float(target_mean - design_mean @ coefficients) - dihedrals * total_k
+                      for design_mean, target_mean, dihedrals in means)
     rmse = tuple(float(np.sqrt(np.mean((target - design @ coefficients) ** 2)))
                  for design, target in zip(centred_designs, centred_targets))
     return JointFit(terms, constants, rmse)

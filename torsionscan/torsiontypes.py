@@ -10,6 +10,16 @@ Joint fit. Per type, one set of terms sum_n k_n [1 + cos(n phi - delta_n)] fitte
 E_QM - E_MM,no-torsion (forcefield.bond_residual) of every member bond at once, each bond with its
 own constant offset, with the per-bond fit's weighting and ridge (torsionfit.fit_joint_terms).
 
+Quartets. The parameter files are keyed by atom classes, so an MD engine puts a type's terms on
+every atom quartet about a member bond whose classes are the type's (in either direction), not
+only on the scanned dihedral: styrene's two ortho quartets C=C-C(ar)-C(ar) are both MMFF94
+2-2-37-37, about 180 deg apart. The fit, its errors and the member curves therefore use the terms
+summed over every such quartet (bond_quartets: for MMFF94 typing the quartets of equal atom types,
+for SMARTS typing those the same pattern types first). The bond's other quartets keep their MMFF94
+terms removed from the residual, which the files cannot say by class; bond_quartets lists them, and
+the class-matching quartets about other bonds of the molecules (a 2-2-2-2 type also matches
+dihedrals about C=C double bonds), for the files' header notes.
+
 Transfer check. For every molecule of a type the terms are fitted again without that molecule
 and its bonds are evaluated with them; the pooled RMS error of those predictions is the type's
 leave-one-out error. A type is not transferable when that error exceeds LEAVE_OUT_LIMIT_KCAL_MOL,
@@ -25,12 +35,14 @@ from dataclasses import dataclass
 
 import numpy as np
 from rdkit import Chem
+from rdkit.Chem import rdForceFieldHelpers
 
 from .errors import InputError
 from .forcefield import bond_residual
+from .mm import quartets_about
 from .molecule import safe_name  # noqa: F401  (importing molecule also silences RDKit's own error log)
 from .records import FitOptions, TorsionParameterSet, TorsionTypeFit, TypeMember
-from .torsionfit import boltzmann_weights, fit_joint_terms, profile_errors, term_energy
+from .torsionfit import boltzmann_weights, fit_joint_terms, profile_errors, quartet_term_energy
 from .version import __version__
 
 MMFF94_TYPING = "mmff94"
@@ -157,10 +169,125 @@ def mmff94_type(mmff_types):
     return label, tuple(mmff94_class(t) for t in key), f"MMFF94 atom types {label}", reverse
 
 
+# -- quartets about a bond -----------------------------------------------------------------------
+@dataclass(frozen=True)
+class BondQuartets:
+    """The atom quartets (0-based) a class-keyed force field relates to one member bond of a type.
+
+    matching: every quartet about the bond with the type's classes, in the type's class order, the
+    scanned dihedral first (the type's terms act on each); others: (quartet, its classes in words)
+    of the other quartets about the bond; elsewhere: (bond "j-k", words) of other bonds of the
+    molecule with a quartet of the type's classes (the files' terms would act there too).
+    """
+
+    matching: tuple[tuple[int, int, int, int], ...]
+    others: tuple[tuple[tuple[int, int, int, int], str], ...]
+    elsewhere: tuple[tuple[str, str], ...]
+
+
+def _mmff94_atom_types(mol):
+    properties = rdForceFieldHelpers.MMFFGetMoleculeProperties(Chem.Mol(mol), mmffVariant="MMFF94")
+    return None if properties is None else [properties.GetMMFFAtomType(i) for i in range(mol.GetNumAtoms())]
+
+
+def _bond_words(mol, j, k):
+    kind = mol.GetBondBetweenAtoms(j, k).GetBondType()
+    names = {Chem.BondType.SINGLE: "single", Chem.BondType.DOUBLE: "double", Chem.BondType.TRIPLE: "triple",
+             Chem.BondType.AROMATIC: "aromatic"}
+    return f"{names.get(kind, str(kind).lower())} bond"
+
+
+def _all_quartets(mol):
+    """(j, k, quartets about j-k) for every bond of mol, j < k."""
+    for bond in mol.GetBonds():
+        j, k = sorted((bond.GetBeginAtomIdx(), bond.GetEndAtomIdx()))
+        quartets = quartets_about(mol, j, k)
+        if quartets:
+            yield j, k, quartets
+
+
+def bond_quartets(mol, dihedral_atoms, typing=MMFF94_TYPING, atom_types=None):
+    """The BondQuartets of the bond whose scanned dihedral is dihedral_atoms (in the type's class order).
+
+    typing: MMFF94_TYPING (atom_types: the molecule's MMFF94 atom types, computed when None) or a
+    tuple of TypePatterns, whose first match types a quartet as in collect_members.
+    """
+    atoms = tuple(dihedral_atoms)
+    j, k = atoms[1], atoms[2]
+    symbols = [a.GetSymbol() for a in mol.GetAtoms()]
+
+    def numbered(q):
+        return "-".join(f"{symbols[a]}{a + 1}" for a in q)
+
+    if typing == MMFF94_TYPING:
+        types = atom_types if atom_types is not None else _mmff94_atom_types(mol)
+        key = tuple(types[a] for a in atoms)
+
+        def typed(q):  # (type key, q in key order) or None when q has other types
+            forward = tuple(types[a] for a in q)
+            if forward == key:
+                return q
+            if forward[::-1] == key:
+                return q[::-1]
+            return None
+
+        def words(q):
+            label, classes, _, _ = mmff94_type([types[a] for a in q])
+            return f"{' '.join(classes)} (MMFF94 {label})"
+    else:
+        scanned = pattern_type(typing, mol, atoms)
+        pattern = scanned[0] if scanned else None
+
+        def typed(q):
+            found = pattern_type(typing, mol, q)
+            if found is None or found[0] is not pattern:
+                return None
+            return q[::-1] if found[1] else q
+
+        def words(q):
+            found = pattern_type(typing, mol, q)
+            if found is None:
+                return f"{'-'.join(symbols[a] for a in q)} of no type in the table"
+            return f"{' '.join(found[0].classes)} (type {found[0].name})"
+
+    matching, others = [atoms], []
+    for q in quartets_about(mol, j, k):
+        if q in (atoms, atoms[::-1]):
+            continue
+        ordered = typed(q)
+        if ordered is not None:
+            matching.append(ordered)
+        else:
+            others.append((q, words(q)))
+    elsewhere = []
+    for a, b, quartets in _all_quartets(mol):
+        if {a, b} == {j, k}:
+            continue
+        hits = [q for q in quartets if typed(q) is not None]
+        if hits:
+            elsewhere.append((f"{a + 1}-{b + 1}", f"{_bond_words(mol, a, b)} {a + 1}-{b + 1} ("
+                              + ", ".join(numbered(q) for q in hits) + ")"))
+    return BondQuartets(tuple(matching), tuple(others), tuple(elsewhere))
+
+
+def parameter_quartets(results, parameters, typing=MMFF94_TYPING):
+    """{(compound, bond): BondQuartets} of every member of a TorsionParameterSet fitted from results
+    ((compound name, ScanResult) pairs) with the same typing: what the parameter files' notes and the
+    per-bond forces need beside the record."""
+    by_name = dict(results)
+    found = {}
+    for fit in parameters.types:
+        for m in fit.members:
+            result = by_name[m.compound]
+            types = _mmff94_atom_types(result.mol) if typing == MMFF94_TYPING else None
+            found[(m.compound, m.bond)] = bond_quartets(result.mol, m.dihedral_atoms, typing, types)
+    return found
+
+
 # -- members and fits -----------------------------------------------------------------------------
 @dataclass(frozen=True)
 class Member:
-    """A typed bond: where it comes from, its type and its BondResidual."""
+    """A typed bond: where it comes from, its type, its BondResidual and its BondQuartets."""
 
     compound: str
     bond: str
@@ -169,11 +296,20 @@ class Member:
     definition: str
     reverse: bool  # the type reads the dihedral backwards
     residual: object  # forcefield.BondResidual
+    quartets: BondQuartets | None = None  # None: the scanned dihedral only
+    quartet_angles_deg: np.ndarray | None = None  # (points, quartets) of quartets.matching
 
     @property
     def atoms(self):
         atoms = self.residual.dihedral_atoms
         return tuple(reversed(atoms)) if self.reverse else tuple(atoms)
+
+    @property
+    def angles_deg(self):
+        """The angles of every class-matching quartet at every point, shape (points, quartets)."""
+        if self.quartet_angles_deg is not None:
+            return self.quartet_angles_deg
+        return np.asarray(self.residual.angles_deg, dtype=float)[:, None]
 
 
 def collect_members(results, typing=MMFF94_TYPING, quantum="gfn"):
@@ -184,6 +320,7 @@ def collect_members(results, typing=MMFF94_TYPING, quantum="gfn"):
     """
     members, left_out = [], []
     for name, result in results:
+        atom_types = None
         for bond in result.bonds:
             try:
                 residual = bond_residual(result, bond, quantum)
@@ -195,6 +332,7 @@ def collect_members(results, typing=MMFF94_TYPING, quantum="gfn"):
                 continue
             if typing == MMFF94_TYPING:
                 label, classes, definition, reverse = mmff94_type(residual.mmff_types)
+                atom_types = atom_types or _mmff94_atom_types(result.mol)
             else:
                 found = pattern_type(typing, result.mol, bond.dihedral_atoms)
                 if found is None:
@@ -203,7 +341,10 @@ def collect_members(results, typing=MMFF94_TYPING, quantum="gfn"):
                     continue
                 pattern, reverse = found
                 label, classes, definition = pattern.name, pattern.classes, f"SMARTS {pattern.smarts}"
-            members.append(Member(name, bond.label, label, classes, definition, reverse, residual))
+            atoms = tuple(reversed(bond.dihedral_atoms)) if reverse else tuple(bond.dihedral_atoms)
+            quartets = bond_quartets(result.mol, atoms, typing, atom_types)
+            angles = np.column_stack([residual.angles_deg, *(residual.dihedral_deg(q) for q in quartets.matching[1:])])
+            members.append(Member(name, bond.label, label, classes, definition, reverse, residual, quartets, angles))
     return members, left_out
 
 
@@ -214,15 +355,21 @@ def _weights(member, options):
 
 
 def joint_terms(members, options):
-    """The JointFit of one set of terms to the residuals of members (each with its own offset)."""
-    return fit_joint_terms([m.residual.angles_deg for m in members], [m.residual.residual_kcal_mol for m in members],
+    """The JointFit of one set of terms to the residuals of members (each with its own offset), the
+    terms acting on every class-matching quartet of each member."""
+    return fit_joint_terms([m.angles_deg for m in members], [m.residual.residual_kcal_mol for m in members],
                            options.max_periodicity, options.free_phases, [_weights(m, options) for m in members])
+
+
+def member_term_energy(member, terms):
+    """The terms summed over the member's class-matching quartets at every point, kcal/mol."""
+    return quartet_term_energy(terms, member.angles_deg)
 
 
 def _model_error(member, terms):
     """RMS error (best constant shift) of MM without torsions + terms against the quantum profile."""
     r = member.residual
-    return profile_errors(r.qm_kcal_mol, r.mm_without_kcal_mol + term_energy(terms, r.angles_deg))[0]
+    return profile_errors(r.qm_kcal_mol, r.mm_without_kcal_mol + member_term_energy(member, terms))[0]
 
 
 def pooled_rms(errors, counts):
@@ -261,7 +408,7 @@ def fit_type(members, options=FitOptions()):
     for n, (m, constant) in enumerate(zip(members, fit.constants_kcal_mol)):
         r = m.residual
         qm, without, full = r.qm_kcal_mol, r.mm_without_kcal_mol, r.mm_full_kcal_mol
-        with_fit = without + term_energy(fit.terms, r.angles_deg)
+        with_fit = without + member_term_energy(m, fit.terms)
         order = np.argsort(r.angles_deg)
 
         def curve(values):
