@@ -7,6 +7,7 @@ from dataclasses import replace
 import numpy as np
 
 import torsionscan
+from torsionscan import geometry
 from torsionscan.analysis import analyse_profile
 from torsionscan.compounds import CompoundEntry
 from torsionscan.engines.model import ModelEngine
@@ -25,6 +26,10 @@ SETTINGS = ScanSettings(step_deg=30.0, conformers=1, frequencies=False)
 # three molecules whose scanned bond has the MMFF94 atom types 2-2-2-2 (hexatriene has two such bonds)
 DIENES = {"butadiene": "C=CC=C", "isoprene": "C=CC(C)=C", "hexatriene": "C=C/C=C/C=C"}
 ENONE = {"acrolein": "C=CC=O"}  # types 2-2-3-7: a type of one molecule
+# type 2-2-37-37 on both ortho quartets C1-C2-C3-C4 and C1-C2-C3-C8 (0-based: 0-1-2-3, 0-1-2-7)
+STYRENES = {"styrene": "C=Cc1ccccc1", "4-methylstyrene": "C=Cc1ccc(C)cc1"}
+# even periodicities only: odd ones nearly cancel between the two quartets and cannot be recovered
+STYRENE_TRUTH = (TorsionTerm(2, 180.0, 1.8), TorsionTerm(4, 180.0, 0.15))
 
 
 def model_scan(name, smiles):
@@ -35,10 +40,15 @@ def model_scan(name, smiles):
     return torsionscan.scan(smiles, name=name, engine=engine, settings=SETTINGS)
 
 
-def pseudo_energies(mol, bond, frames_angstrom, angles_deg, truth):
-    """MMFF94 without the bond's torsion terms + truth, kcal/mol, shifted to a minimum of 0."""
+def pseudo_energies(mol, bond, frames_angstrom, angles_deg, truth, quartets=None):
+    """MMFF94 without the bond's torsion terms + truth, kcal/mol, shifted to a minimum of 0; truth on
+    the scanned dihedral (angles_deg) or, given quartets, summed over those quartets."""
     _, without = Mmff94(mol, bond.dihedral_atoms[1:3]).energies(frames_angstrom)
-    values = without + term_energy(truth, angles_deg)
+    if quartets is None:
+        values = without + term_energy(truth, angles_deg)
+    else:
+        values = without + sum(term_energy(truth, [np.degrees(geometry.dihedral(f, *q)) for f in frames_angstrom])
+                               for q in quartets)
     return values - values.min()
 
 
@@ -46,10 +56,11 @@ def _frames(points):
     return [p.coords_bohr * BOHR_ANGSTROM for p in points]
 
 
-def with_truth(result, truth=TRUTH, where="scan", offset_hartree=-150.0):
+def with_truth(result, truth=TRUTH, where="scan", offset_hartree=-150.0, quartets=None):
     """The result with every bond's profile replaced by pseudo_energies(truth), in the scan's own
     energies ("scan"), as a re-scored profile ("rescored") or as a refined profile ("refined") whose
-    structures are the scan's scaled by 1.01 (same dihedrals, other MMFF94 energies)."""
+    structures are the scan's scaled by 1.01 (same dihedrals, other MMFF94 energies). quartets:
+    {bond label: quartets the truth acts on} ("scan" only; default the scanned dihedral)."""
     bonds = []
     for bond in result.bonds:
         relaxed = bond.relaxed_points
@@ -64,7 +75,8 @@ def with_truth(result, truth=TRUTH, where="scan", offset_hartree=-150.0):
                                      thermal_note="")
             bonds.append(replace(bond, refined=refined))
             continue
-        kcal = pseudo_energies(result.mol, bond, _frames(relaxed), [p.measured_angle_deg for p in relaxed], truth)
+        kcal = pseudo_energies(result.mol, bond, _frames(relaxed), [p.measured_angle_deg for p in relaxed], truth,
+                               (quartets or {}).get(bond.label))
         hartree = offset_hartree + kcal / HARTREE_KCAL_MOL
         pairs = bond.points_with_frames()
         if where == "rescored":

@@ -42,15 +42,21 @@ def openmm_torsion_xml(fit):
 def openmm_force_xml(dihedral_atoms, terms):
     """Terms (torsionfit.TorsionTerm) on one quartet (0-based atom indices) as a serialized OpenMM
     PeriodicTorsionForce: k in kJ/mol, phase in radians, the energy k [1 + cos(n phi - phase)]."""
-    p1, p2, p3, p4 = dihedral_atoms
+    return openmm_quartets_xml([dihedral_atoms], terms)
+
+
+def openmm_quartets_xml(quartets, terms):
+    """The same terms on each of several quartets (0-based atom indices) as one serialized OpenMM
+    PeriodicTorsionForce; the energy is the sum over the quartets."""
     lines = ['<?xml version="1.0" ?>',
              '<Force forceGroup="0" name="PeriodicTorsionForce" type="PeriodicTorsionForce" usesPeriodic="0" version="2">',
              "\t<Torsions>"]
-    for term in terms:
-        lines.append(
-            f'\t\t<Torsion k={quoteattr(repr(term.k_kj_mol))} p1="{p1}" p2="{p2}" p3="{p3}" p4="{p4}" '
-            f'periodicity="{term.periodicity}" phase={quoteattr(repr(math.radians(term.phase_deg)))}/>'
-        )
+    for p1, p2, p3, p4 in quartets:
+        for term in terms:
+            lines.append(
+                f'\t\t<Torsion k={quoteattr(repr(term.k_kj_mol))} p1="{p1}" p2="{p2}" p3="{p3}" p4="{p4}" '
+                f'periodicity="{term.periodicity}" phase={quoteattr(repr(math.radians(term.phase_deg)))}/>'
+            )
     lines += ["\t</Torsions>", "</Force>", ""]
     return "\n".join(lines)
 

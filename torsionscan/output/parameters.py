@@ -20,18 +20,27 @@ a type is written, zero force constants included, so each file holds periodiciti
 Atom types in the files are the types' atom classes (torsiontypes: "A2" for MMFF94 type 2 and so
 on, or the classes of a SMARTS table). No file is a complete force field: each holds torsion terms
 only, meant to replace every torsion term about the bonds of these types in a model whose atoms
-carry those classes. Numbers are written in fixed-point notation (AMBER readers take no
-exponents) with 8 decimals for force constants, full precision in the OpenMM XML.
+carry those classes. An MD engine puts a type's terms on every quartet of its four classes, and
+the fit summed them over every such quartet about each member bond (styrene's two ortho quartets);
+the other quartets about a member bond had their MMFF94 terms removed in the fit, which a file
+keyed by classes cannot express, and classes do not tell a conjugated single bond from a double
+bond. Every file's header says so (GENERAL_NOTES); with the BondQuartets of the members
+(torsiontypes.parameter_quartets) each type's notes also list how many quartets it acts on, the
+other class quartets about its bonds and the other bonds its classes match. Numbers are written
+in fixed-point notation (AMBER readers take no exponents) with 8 decimals for force constants,
+full precision in the OpenMM XML.
 
 Besides those: torsion_parameters.json (the record, full precision), torsion_types.csv (one row per
 type), torsion_members.csv (one row per bond, left-out bonds with the reason), a figure per type
 (every member's quantum profile with the fitted model) and, per member bond, the type's terms on
-its own dihedral as a serialized OpenMM force (0-based atom indices of that molecule).
+every class-matching quartet about it (the scanned dihedral only without the BondQuartets) as a
+serialized OpenMM force (0-based atom indices of that molecule).
 """
 
 import json
 import math
 import re
+from collections import Counter
 from pathlib import Path
 from xml.sax.saxutils import escape, quoteattr
 
@@ -41,7 +50,7 @@ from ..errors import InputError
 from ..records import to_plain
 from ..units import KCAL_KJ
 from . import atomic_write, bond_stem, check_output_folder, storage_error
-from .forcefield import openmm_force_xml
+from .forcefield import openmm_quartets_xml
 from .report import write_table_csv
 
 FILE_NAMES = {"amber": "torsions.frcmod", "gromacs": "torsions_gromacs.itp", "charmm": "torsions_charmm.prm",
@@ -52,6 +61,16 @@ TYPES_TABLE = "torsion_types.csv"
 MEMBERS_TABLE = "torsion_members.csv"
 MEMBER_FORCES = "member_forces"  # folder of the per-bond serialized OpenMM forces
 AMBER_TYPE_LENGTH = 2
+GENERAL_NOTES = (
+    "each type's terms act on every dihedral whose four atom classes are the type's (either direction), as "
+    "fitted: summed over every such quartet about each member bond (class_quartets in torsion_members.csv)",
+    "use them with no other torsion terms about the member bonds: the fit removed the torsion terms of {mm} on "
+    "every quartet about those bonds, so zero the force field's own terms there (other_quartets in "
+    "torsion_members.csv)",
+    "atom classes do not tell bonds apart: a quartet of a type's classes about any other bond (e.g. a C=C double "
+    "bond) gets these terms too; check the dihedrals your MD engine assigns",
+)
+_LISTED = 6  # bonds named per type in the notes, the rest counted
 
 
 def parse_formats(text):
@@ -91,41 +110,87 @@ def _header(parameters):
             "torsion terms only, not a complete force field")
 
 
-def amber_frcmod(parameters):
-    """The types as an AMBER frcmod file: title line and a DIHE section, IDIVF = 1, PHASE in degrees."""
-    lines = [_comment(_header(parameters)), "DIHE"]
+def general_notes(parameters):
+    """The header notes every file carries: how the terms act and what the force field must leave out."""
+    return [_comment(n.format(mm=parameters.mm_model)) for n in GENERAL_NOTES]
+
+
+def _bond_key(bond):
+    """A bond label "j-k" with j < k."""
+    j, k = sorted(int(a) for a in bond.split("-"))
+    return f"{j}-{k}"
+
+
+def _plural(count, word):
+    return f"{count} {word}{'' if count == 1 else 's'}"
+
+
+def type_quartet_notes(fit, quartets):
+    """Notes on one type from the members' BondQuartets ({(compound, bond): BondQuartets}, None: none):
+    the quartets it acts on per bond, the other class quartets about its bonds, the other bonds its
+    classes match in the member molecules."""
+    if quartets is None:
+        return []
+    found = [(m, quartets[(m.compound, m.bond)]) for m in fit.members if (m.compound, m.bond) in quartets]
+    if not found:
+        return []
+    counts = sorted(Counter(len(q.matching) for _, q in found).items())
+    acting = ", ".join(f"{_plural(n, 'quartet')} about {'each of ' if len(counts) == 1 and c > 1 else ''}"
+                       f"{_plural(c, 'bond')}" for n, c in counts)
+    notes = [f"type {fit.label} acts on {acting}"]
+    others = sorted({words for _, q in found for _, words in q.others})
+    notes.append(f"type {fit.label}: other quartets about its bonds (their torsion terms must be zero): "
+                 + ("; ".join(others) if others else "none"))
+    members = {(m.compound, _bond_key(m.bond)) for m in fit.members}
+    elsewhere = list(dict.fromkeys(f"{m.compound} {words}" for m, q in found for bond, words in q.elsewhere
+                                   if (m.compound, _bond_key(bond)) not in members))
+    if elsewhere:
+        listed = "; ".join(elsewhere[:_LISTED]) + (f"; and {len(elsewhere) - _LISTED} more" if len(elsewhere) > _LISTED else "")
+        notes.append(f"type {fit.label}: its classes also match dihedrals about other bonds, which get these terms "
+                     f"too: {listed}")
+    return [_comment(n) for n in notes]
+
+
+def amber_frcmod(parameters, quartets=None):
+    """The types as an AMBER frcmod file: title line (with the general notes: frcmod has no comment
+    lines) and a DIHE section, IDIVF = 1, PHASE in degrees, each type's notes after its term lines."""
+    lines = [_comment("; ".join([_header(parameters), *general_notes(parameters)])), "DIHE"]
     for fit in parameters.types:
         names = "-".join(f"{c:<2s}" for c in fit.classes)
+        notes = [_type_note(fit), *type_quartet_notes(fit, quartets)]
+        notes = notes[:len(fit.terms) - 1] + ["; ".join(notes[len(fit.terms) - 1:])]  # one note per term line
         for number, term in enumerate(fit.terms):
             last = number == len(fit.terms) - 1
             periodicity = term.periodicity if last else -term.periodicity
-            note = f"  {_type_note(fit)}" if number == 0 else ""
+            note = f"  {notes[number]}" if number < len(notes) and notes[number] else ""
             lines.append(f"{names} {1:3d} {term.k_kcal_mol:14.8f} {term.phase_deg:12.6f} {periodicity:6.1f}{note}")
     lines += ["", ""]
     return "\n".join(lines)
 
 
-def gromacs_dihedraltypes(parameters):
+def gromacs_dihedraltypes(parameters, quartets=None):
     """The types as a GROMACS [ dihedraltypes ] section, function type 9, k in kJ/mol, phase in degrees."""
     lines = [f"; {_comment(_header(parameters))}",
+             *(f"; {n}" for n in general_notes(parameters)),
              "; V = k [1 + cos(n phi - phi_s)] per line, function type 9; include it after the force field's own "
              "[ dihedraltypes ]",
              "[ dihedraltypes ]",
              ";      i        j        k        l  func      phi_s (deg)     k (kJ/mol)   n"]
     for fit in parameters.types:
-        lines.append(f"; {_type_note(fit)}")
+        lines += [f"; {n}" for n in (_type_note(fit), *type_quartet_notes(fit, quartets))]
         for term in fit.terms:
             lines.append(f"{fit.classes[0]:>8s} {fit.classes[1]:>8s} {fit.classes[2]:>8s} {fit.classes[3]:>8s}     9 "
                          f"{term.phase_deg:16.6f} {term.k_kcal_mol * KCAL_KJ:14.8f} {term.periodicity:3d}")
     return "\n".join(lines) + "\n"
 
 
-def charmm_parameters(parameters):
+def charmm_parameters(parameters, quartets=None):
     """The types as a CHARMM parameter file: a DIHEDRALS section, Kchi in kcal/mol, delta in degrees."""
-    lines = [f"* {_comment(_header(parameters))}", "*", "", "DIHEDRALS", "!V(dihedral) = Kchi(1 + cos(n(chi) - delta))",
+    lines = [f"* {_comment(_header(parameters))}", *(f"! {n}" for n in general_notes(parameters)), "*", "",
+             "DIHEDRALS", "!V(dihedral) = Kchi(1 + cos(n(chi) - delta))",
              "!Kchi: kcal/mole, n: multiplicity, delta: degrees", "!atom types                   Kchi    n      delta"]
     for fit in parameters.types:
-        lines.append(f"! {_type_note(fit)}")
+        lines += [f"! {n}" for n in (_type_note(fit), *type_quartet_notes(fit, quartets))]
         for term in fit.terms:
             lines.append(f"{fit.classes[0]:<6s} {fit.classes[1]:<6s} {fit.classes[2]:<6s} {fit.classes[3]:<6s} "
                          f"{term.k_kcal_mol:14.8f} {term.periodicity:2d} {term.phase_deg:12.6f}")
@@ -133,16 +198,16 @@ def charmm_parameters(parameters):
     return "\n".join(lines)
 
 
-def openmm_forcefield_xml(parameters):
+def openmm_forcefield_xml(parameters, quartets=None):
     """The types as an OpenMM force-field XML file: one Proper per type (classes, k in kJ/mol, phase in rad)."""
     lines = ['<?xml version="1.0" encoding="utf-8"?>', f"<!-- {escape(_comment(_header(parameters)))} -->",
-             "<ForceField>", " <PeriodicTorsionForce>"]
+             *(f"<!-- {escape(n)} -->" for n in general_notes(parameters)), "<ForceField>", " <PeriodicTorsionForce>"]
     for fit in parameters.types:
         attributes = " ".join(f"class{n + 1}={quoteattr(c)}" for n, c in enumerate(fit.classes))
         for n, term in enumerate(fit.terms, start=1):
             attributes += (f' periodicity{n}="{term.periodicity}" phase{n}={quoteattr(repr(math.radians(term.phase_deg)))}'
                            f" k{n}={quoteattr(repr(term.k_kj_mol))}")
-        lines.append(f"  <!-- {escape(_type_note(fit))} -->")
+        lines += [f"  <!-- {escape(n)} -->" for n in (_type_note(fit), *type_quartet_notes(fit, quartets))]
         lines.append(f"  <Proper {attributes}/>")
     lines += [" </PeriodicTorsionForce>", "</ForceField>", ""]
     return "\n".join(lines)
@@ -181,16 +246,26 @@ def type_rows(parameters):
 
 MEMBER_COLUMNS = ["compound", "bond", "type", "dihedral_atoms", "mmff_types", "quantum_profile", "points",
                   "constant_kcal_mol", "rmse_mmff94_kcal_mol", "rmse_without_torsion_kcal_mol", "rmse_fit_kcal_mol",
-                  "rmse_leave_one_out_kcal_mol", "left_out_reason"]
+                  "rmse_leave_one_out_kcal_mol", "class_quartets", "other_quartets", "also_matches_bonds",
+                  "left_out_reason"]
 
 
-def member_rows(parameters):
-    """One row per bond: its type and errors (1-based atom numbers in the type's class order), then the
-    bonds left out with the reason."""
+def _numbers(quartet):
+    return "-".join(str(a + 1) for a in quartet)
+
+
+def member_rows(parameters, quartets=None):
+    """One row per bond: its type and errors (1-based atom numbers in the type's class order), the
+    quartets about it the type acts on and the others, the other bonds with a quartet of the type's
+    classes (from the BondQuartets, empty without them), then the bonds left out with the reason."""
     rows = []
     for fit in parameters.types:
         for m in fit.members:
+            found = (quartets or {}).get((m.compound, m.bond))
             rows.append({
+                "class_quartets": " ".join(_numbers(q) for q in found.matching) if found else "",
+                "other_quartets": " ".join(_numbers(q) for q, _ in found.others) if found else "",
+                "also_matches_bonds": " ".join(b for b, _ in found.elsewhere) if found else "",
                 "compound": m.compound, "bond": m.bond, "type": fit.label,
                 "dihedral_atoms": "-".join(str(a + 1) for a in m.dihedral_atoms),
                 "mmff_types": "-".join(str(t) for t in m.mmff_types) if m.mmff_types else "",
@@ -260,9 +335,13 @@ def summary_lines(parameters):
     return lines
 
 
-def write_parameter_set(parameters, out_dir, formats=FORMATS):
+def write_parameter_set(parameters, out_dir, formats=FORMATS, quartets=None):
     """Write the JSON record, both tables, a figure per type, the files of the chosen formats and the
-    per-bond OpenMM forces into out_dir (created); returns the paths written by kind."""
+    per-bond OpenMM forces into out_dir (created); returns the paths written by kind.
+
+    quartets: {(compound, bond): torsiontypes.BondQuartets} of the members (parameter_quartets), for
+    the notes per type, the quartet columns and forces on every class-matching quartet; without it
+    each per-bond force holds the terms on the scanned dihedral only."""
     check_types(parameters, formats)
     out_dir = Path(out_dir)
     check_output_folder(out_dir)
@@ -279,9 +358,9 @@ def write_parameter_set(parameters, out_dir, formats=FORMATS):
                                                                          allow_nan=False) + "\n"))
     written["record"] = out_dir / JSON_NAME
     written["types table"] = table(TYPES_TABLE, *type_rows(parameters))
-    written["members table"] = table(MEMBERS_TABLE, MEMBER_COLUMNS, member_rows(parameters))
+    written["members table"] = table(MEMBERS_TABLE, MEMBER_COLUMNS, member_rows(parameters, quartets))
     for fmt in formats:
-        text = WRITERS[fmt](parameters)
+        text = WRITERS[fmt](parameters, quartets)
         atomic_write(out_dir / FILE_NAMES[fmt], lambda p, text=text: p.write_text(text, encoding="utf-8"))
         written[fmt] = out_dir / FILE_NAMES[fmt]
     figures = []
@@ -304,7 +383,8 @@ def write_parameter_set(parameters, out_dir, formats=FORMATS):
         for fit in parameters.types:
             for m in fit.members:
                 path = forces / f"{member_stem(m.compound, m.bond)}_openmm.xml"
-                text = openmm_force_xml(m.dihedral_atoms, fit.terms)
+                found = (quartets or {}).get((m.compound, m.bond))
+                text = openmm_quartets_xml(found.matching if found else [m.dihedral_atoms], fit.terms)
                 atomic_write(path, lambda p, text=text: p.write_text(text))
                 paths.append(path)
         written["member forces"] = paths
