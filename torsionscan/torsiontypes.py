@@ -206,6 +206,18 @@ def _all_quartets(mol):
             yield j, k, quartets
 
 
+def _first_patterns(patterns, mol):
+    """{quartet: (pattern, reversed)} of every quartet some pattern maps, as pattern_type finds it
+    (the first pattern in table order, the first match of it), in both directions."""
+    first = {}
+    for pattern in patterns:
+        for match in mol.GetSubstructMatches(pattern.query, uniquify=False, maxMatches=100000):
+            quartet = tuple(match[a] for a in pattern.mapped)
+            if quartet not in first:
+                first[quartet], first[quartet[::-1]] = (pattern, False), (pattern, True)
+    return first
+
+
 def bond_quartets(mol, dihedral_atoms, typing=MMFF94_TYPING, atom_types=None):
     """The BondQuartets of the bond whose scanned dihedral is dihedral_atoms (in the type's class order).
 
@@ -235,17 +247,18 @@ def bond_quartets(mol, dihedral_atoms, typing=MMFF94_TYPING, atom_types=None):
             label, classes, _, _ = mmff94_type([types[a] for a in q])
             return f"{' '.join(classes)} (MMFF94 {label})"
     else:
-        scanned = pattern_type(typing, mol, atoms)
+        first = _first_patterns(typing, mol)
+        scanned = first.get(atoms)
         pattern = scanned[0] if scanned else None
 
         def typed(q):
-            found = pattern_type(typing, mol, q)
+            found = first.get(q)
             if found is None or found[0] is not pattern:
                 return None
             return q[::-1] if found[1] else q
 
         def words(q):
-            found = pattern_type(typing, mol, q)
+            found = first.get(q)
             if found is None:
                 return f"{'-'.join(symbols[a] for a in q)} of no type in the table"
             return f"{' '.join(found[0].classes)} (type {found[0].name})"
