@@ -22,7 +22,7 @@ from torsionscan import geometry
 from torsionscan.forcefield import bond_residual, fit_torsion
 from torsionscan.output.parameters import FILE_NAMES, MEMBER_FORCES, member_stem, write_parameter_set
 from torsionscan.torsionfit import term_energy
-from torsionscan.torsiontypes import fit_parameter_set, mmff94_class, parameter_quartets
+from torsionscan.torsiontypes import fit_parameter_set, mmff94_class, parameter_quartets, parse_pattern
 from torsionscan.units import BOHR_ANGSTROM, KCAL_KJ
 from torsionscan.workflows import fit_set_run
 
@@ -251,3 +251,17 @@ def test_files_say_which_quartets_the_terms_act_on(styrenes):
     assert len(parmed.amber.AmberParameterSet(str(paths["amber"])).dihedral_types) == 3  # A2 D7 both ways, A2 A2 A2 A2
     assert len(parmed.charmm.CharmmParameterSet(str(paths["charmm"])).dihedral_types) == 3  # A2 D7 both ways, A2 A2 A2 A2
     assert len(parmed.gromacs.GromacsTopologyFile(str(paths["gromacs"])).parameterset.dihedral_types) == 3  # A2 D7 both ways, A2 A2 A2 A2
+
+
+def test_smarts_type_acts_on_every_quartet_the_pattern_types(styrenes):
+    parameters, _, results = styrenes
+    pairs = [(name, results[name]) for name in STYRENES]
+    patterns = (parse_pattern("vinyl-aryl", "[C:1]=[C:2]-[c:3]:[c:4]", "cv cv ca ca"),)
+    (fit,) = fit_parameter_set(pairs, typing=patterns).types
+    mmff = {t.label: t for t in parameters.types}["2-2-37-37"]
+    assert max(abs(a.k_kcal_mol - b.k_kcal_mol) for a, b in zip(fit.terms, mmff.terms)) < 1e-9
+    quartets = parameter_quartets(list(results.items()), parameters)
+    for m in mmff.members:
+        residual = bond_residual(results[m.compound], results[m.compound].bond(m.bond))
+        assert np.max(np.abs(residual.dihedral_deg(m.dihedral_atoms) - residual.angles_deg)) < 1e-9
+        assert sorted(quartets[(m.compound, m.bond)].matching) == sorted(_ortho(results[m.compound]))
