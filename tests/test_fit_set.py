@@ -15,7 +15,8 @@ from torsionscan.errors import InputError
 from torsionscan.forcefield import bond_residual, fit_torsion
 from torsionscan.records import FitOptions, TorsionParameterSet, from_plain
 from torsionscan.torsionfit import fit_joint_terms, fit_terms, profile_errors, term_energy
-from torsionscan.torsiontypes import (fit_parameter_set, mmff94_class, mmff94_type, parse_pattern,
+from torsionscan.output.parameters import write_parameter_set
+from torsionscan.torsiontypes import (fit_parameter_set, mmff94_class, mmff94_type, parameter_quartets, parse_pattern,
                                       pattern_type, transfer_verdict)
 
 
@@ -323,3 +324,19 @@ def test_fit_set_in_a_real_subprocess(truth_run, tmp_path):
     assert bad.returncode == 2
     assert bad.stderr.strip().splitlines() == [
         "torsionscan: error: --formats lammps: unknown format; choose from amber, gromacs, charmm, openmm"]
+
+
+def test_notes_name_other_quartets_that_carry_another_types_classes(scans, tmp_path):
+    """A catch-all pattern types acrolein's bond and, about isoprene's bond, the quartets C=C-C-CH3 and
+    those with hydrogens: the files put its terms there too, which the diene fit did not assume."""
+    results = [("isoprene", with_truth(scans["isoprene"], TRUTH)), ("acrolein", with_truth(scans["acrolein"], OTHER_TRUTH))]
+    patterns = (parse_pattern("diene", "[C:1]=[C:2]-[C:3]=[C:4]", "d1 d2 d2 d1"),
+                parse_pattern("generic", "[*:1]~[C:2]-[C:3]~[*:4]", "x1 x2 x2 x1", row_number=2))
+    parameters = fit_parameter_set(results, typing=patterns)
+    quartets = parameter_quartets(results, parameters, patterns)
+    written = write_parameter_set(parameters, tmp_path / "out", formats=("gromacs",), quartets=quartets)
+    text = written["gromacs"].read_text()
+    assert ("; type diene: some other quartets about its bonds carry the classes of type generic, whose terms the "
+            "files put there too although this fit assumed none") in text
+    assert "type generic: some other quartets" not in text  # the diene classes occur about no acrolein quartet
+    assert "x1 x2 x2 x1 (type generic)" in text

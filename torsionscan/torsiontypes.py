@@ -175,13 +175,13 @@ class BondQuartets:
     """The atom quartets (0-based) a class-keyed force field relates to one member bond of a type.
 
     matching: every quartet about the bond with the type's classes, in the type's class order, the
-    scanned dihedral first (the type's terms act on each); others: (quartet, its classes in words)
-    of the other quartets about the bond; elsewhere: (bond "j-k", words) of other bonds of the
+    scanned dihedral first (the type's terms act on each); others: (quartet, its atom classes or
+    None, words) of the other quartets about the bond; elsewhere: (bond "j-k", words) of other bonds of the
     molecule with a quartet of the type's classes (the files' terms would act there too).
     """
 
     matching: tuple[tuple[int, int, int, int], ...]
-    others: tuple[tuple[tuple[int, int, int, int], str], ...]
+    others: tuple[tuple[tuple[int, int, int, int], tuple[str, ...] | None, str], ...]
     elsewhere: tuple[tuple[str, str], ...]
 
 
@@ -243,9 +243,9 @@ def bond_quartets(mol, dihedral_atoms, typing=MMFF94_TYPING, atom_types=None):
                 return q[::-1]
             return None
 
-        def words(q):
+        def described(q):
             label, classes, _, _ = mmff94_type([types[a] for a in q])
-            return f"{' '.join(classes)} (MMFF94 {label})"
+            return classes, f"{' '.join(classes)} (MMFF94 {label})"
     else:
         first = _first_patterns(typing, mol)
         scanned = first.get(atoms)
@@ -257,11 +257,11 @@ def bond_quartets(mol, dihedral_atoms, typing=MMFF94_TYPING, atom_types=None):
                 return None
             return q[::-1] if found[1] else q
 
-        def words(q):
+        def described(q):
             found = first.get(q)
             if found is None:
-                return f"{'-'.join(symbols[a] for a in q)} of no type in the table"
-            return f"{' '.join(found[0].classes)} (type {found[0].name})"
+                return None, f"{'-'.join(symbols[a] for a in q)} of no type in the table"
+            return found[0].classes, f"{' '.join(found[0].classes)} (type {found[0].name})"
 
     matching, others = [atoms], []
     for q in quartets_about(mol, j, k):
@@ -271,7 +271,7 @@ def bond_quartets(mol, dihedral_atoms, typing=MMFF94_TYPING, atom_types=None):
         if ordered is not None:
             matching.append(ordered)
         else:
-            others.append((q, words(q)))
+            others.append((q, *described(q)))
     elsewhere = []
     for a, b, quartets in _all_quartets(mol):
         if {a, b} == {j, k}:

@@ -125,10 +125,11 @@ def _plural(count, word):
     return f"{count} {word}{'' if count == 1 else 's'}"
 
 
-def type_quartet_notes(fit, quartets):
+def type_quartet_notes(fit, quartets, types=()):
     """Notes on one type from the members' BondQuartets ({(compound, bond): BondQuartets}, None: none):
-    the quartets it acts on per bond, the other class quartets about its bonds, the other bonds its
-    classes match in the member molecules."""
+    the quartets it acts on per bond, the other class quartets about its bonds (and which of them
+    carry the classes of another of the types), the other bonds its classes match in the member
+    molecules."""
     if quartets is None:
         return []
     found = [(m, quartets[(m.compound, m.bond)]) for m in fit.members if (m.compound, m.bond) in quartets]
@@ -138,17 +139,29 @@ def type_quartet_notes(fit, quartets):
     acting = ", ".join(f"{_plural(n, 'quartet')} about {'each of ' if len(counts) == 1 and c > 1 else ''}"
                        f"{_plural(c, 'bond')}" for n, c in counts)
     notes = [f"type {fit.label} acts on {acting}"]
-    others = sorted({words for _, q in found for _, words in q.others})
+    others = sorted({words for _, q in found for _, _, words in q.others})
     notes.append(f"type {fit.label}: other quartets about its bonds (their torsion terms must be zero): "
                  + ("; ".join(others) if others else "none"))
+    classes = {c for _, q in found for _, c, _ in q.others if c is not None}
+    clashes = [t.label for t in types if t is not fit and (tuple(t.classes) in classes
+                                                          or tuple(reversed(t.classes)) in classes)]
+    if clashes:
+        notes.append(f"type {fit.label}: some other quartets about its bonds carry the classes of type "
+                     f"{', '.join(clashes)}, whose terms the files put there too although this fit assumed none")
     members = {(m.compound, _bond_key(m.bond)) for m in fit.members}
     elsewhere = list(dict.fromkeys(f"{m.compound} {words}" for m, q in found for bond, words in q.elsewhere
                                    if (m.compound, _bond_key(bond)) not in members))
     if elsewhere:
-        listed = "; ".join(elsewhere[:_LISTED]) + (f"; and {len(elsewhere) - _LISTED} more" if len(elsewhere) > _LISTED else "")
+        listed = "; ".join(elsewhere[:_LISTED])
+        if len(elsewhere) > _LISTED:
+            listed += f"; and {len(elsewhere) - _LISTED} more"
         notes.append(f"type {fit.label}: its classes also match dihedrals about other bonds, which get these terms "
                      f"too: {listed}")
     return [_comment(n) for n in notes]
+
+
+def _type_notes(fit, parameters, quartets):
+    return [_type_note(fit), *type_quartet_notes(fit, quartets, parameters.types)]
 
 
 def amber_frcmod(parameters, quartets=None):
@@ -157,7 +170,7 @@ def amber_frcmod(parameters, quartets=None):
     lines = [_comment("; ".join([_header(parameters), *general_notes(parameters)])), "DIHE"]
     for fit in parameters.types:
         names = "-".join(f"{c:<2s}" for c in fit.classes)
-        notes = [_type_note(fit), *type_quartet_notes(fit, quartets)]
+        notes = _type_notes(fit, parameters, quartets)
         notes = notes[:len(fit.terms) - 1] + ["; ".join(notes[len(fit.terms) - 1:])]  # one note per term line
         for number, term in enumerate(fit.terms):
             last = number == len(fit.terms) - 1
@@ -177,7 +190,7 @@ def gromacs_dihedraltypes(parameters, quartets=None):
              "[ dihedraltypes ]",
              ";      i        j        k        l  func      phi_s (deg)     k (kJ/mol)   n"]
     for fit in parameters.types:
-        lines += [f"; {n}" for n in (_type_note(fit), *type_quartet_notes(fit, quartets))]
+        lines += [f"; {n}" for n in _type_notes(fit, parameters, quartets)]
         for term in fit.terms:
             lines.append(f"{fit.classes[0]:>8s} {fit.classes[1]:>8s} {fit.classes[2]:>8s} {fit.classes[3]:>8s}     9 "
                          f"{term.phase_deg:16.6f} {term.k_kcal_mol * KCAL_KJ:14.8f} {term.periodicity:3d}")
@@ -190,7 +203,7 @@ def charmm_parameters(parameters, quartets=None):
              "DIHEDRALS", "!V(dihedral) = Kchi(1 + cos(n(chi) - delta))",
              "!Kchi: kcal/mole, n: multiplicity, delta: degrees", "!atom types                   Kchi    n      delta"]
     for fit in parameters.types:
-        lines += [f"! {n}" for n in (_type_note(fit), *type_quartet_notes(fit, quartets))]
+        lines += [f"! {n}" for n in _type_notes(fit, parameters, quartets)]
         for term in fit.terms:
             lines.append(f"{fit.classes[0]:<6s} {fit.classes[1]:<6s} {fit.classes[2]:<6s} {fit.classes[3]:<6s} "
                          f"{term.k_kcal_mol:14.8f} {term.periodicity:2d} {term.phase_deg:12.6f}")
@@ -207,7 +220,7 @@ def openmm_forcefield_xml(parameters, quartets=None):
         for n, term in enumerate(fit.terms, start=1):
             attributes += (f' periodicity{n}="{term.periodicity}" phase{n}={quoteattr(repr(math.radians(term.phase_deg)))}'
                            f" k{n}={quoteattr(repr(term.k_kj_mol))}")
-        lines += [f"  <!-- {escape(n)} -->" for n in (_type_note(fit), *type_quartet_notes(fit, quartets))]
+        lines += [f"  <!-- {escape(n)} -->" for n in _type_notes(fit, parameters, quartets)]
         lines.append(f"  <Proper {attributes}/>")
     lines += [" </PeriodicTorsionForce>", "</ForceField>", ""]
     return "\n".join(lines)
@@ -264,7 +277,7 @@ def member_rows(parameters, quartets=None):
             found = (quartets or {}).get((m.compound, m.bond))
             rows.append({
                 "class_quartets": " ".join(_numbers(q) for q in found.matching) if found else "",
-                "other_quartets": " ".join(_numbers(q) for q, _ in found.others) if found else "",
+                "other_quartets": " ".join(_numbers(q) for q, _, _ in found.others) if found else "",
                 "also_matches_bonds": " ".join(b for b, _ in found.elsewhere) if found else "",
                 "compound": m.compound, "bond": m.bond, "type": fit.label,
                 "dihedral_atoms": "-".join(str(a + 1) for a in m.dihedral_atoms),
