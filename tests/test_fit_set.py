@@ -156,6 +156,10 @@ def test_known_terms_recovered_through_the_whole_path(truth_run, tmp_path, capsy
     with (out / "torsion_members.csv").open() as handle:
         members = list(csv.DictReader(handle))
     assert len(members) == 5 and all(not r["left_out_reason"] for r in members)
+    # the command passes each member's quartets about its bond to the writers (hexatriene's central
+    # C=C also carries the 2-2-2-2 classes, and the files say so)
+    assert all(r["class_quartets"] for r in members)
+    assert any(r["also_matches_bonds"] for r in members if r["compound"] == "hexatriene")
     for name in ("torsions.frcmod", "torsions_gromacs.itp", "torsions_charmm.prm", "torsions_openmm.xml",
                  "type_2-2-2-2.png", "type_2-2-3-7.png", "member_forces/hexatriene_bond_4-5_openmm.xml"):
         assert (out / name).stat().st_size > 200, name

@@ -117,7 +117,7 @@ def fit_set_run(run_folder, types="mmff94", formats_text="amber,gromacs,charmm,o
     write the parameter files (output.parameters); returns (TorsionParameterSet, written paths)."""
     from .output import check_output_folder
     from .output.parameters import write_parameter_set
-    from .torsiontypes import fit_parameter_set
+    from .torsiontypes import fit_parameter_set, parameter_quartets
 
     typing, label, formats = check_fit_set(types, formats_text)
     options = options or FitOptions()
@@ -126,7 +126,7 @@ def fit_set_run(run_folder, types="mmff94", formats_text="amber,gromacs,charmm,o
     results = run_results(run_folder)
     check_output_folder(out_dir)
     parameters = fit_parameter_set(results, typing, options, quantum, label)
-    return parameters, write_parameter_set(parameters, out_dir, formats)
+    return parameters, write_parameter_set(parameters, out_dir, formats, parameter_quartets(results, parameters, typing))
 
 
 def check_refinement(level_text, settings, points_mode="all", reference=None):
