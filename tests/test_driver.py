@@ -159,11 +159,18 @@ def test_an_engine_is_refused_for_what_its_capabilities_do_not_cover():
 
 
 @pytest.mark.xtb
-def test_the_frequency_stage_on_two_cores_gives_the_one_core_result_bit_for_bit():
+def test_the_frequency_stage_on_two_cores_gives_the_one_core_result_bit_for_bit(monkeypatch):
     # every displaced gradient starts from the reference structure's wavefunction, whichever process runs it
+    from torsionscan import driver
+    from torsionscan.engines import pool
+
+    made = []
+    monkeypatch.setattr(driver.FrequencyProcesses, "WORTH_S", 0.0)  # spread even this small stage
+    monkeypatch.setattr(driver, "GradientPool", lambda *args: made.append(pool.GradientPool(*args)) or made[-1])
     settings = torsionscan.ScanSettings(conformers=1, step_deg=30.0)
     one = torsionscan.scan("C=CC=O", settings=settings, cores=1).to_dict()
     two = torsionscan.scan("C=CC=O", settings=settings, cores=2).to_dict()
+    assert len(made) == 1 and made[0].evaluations > 0  # the two-core scan did use the worker processes
     for plain in (one, two):
         for bond in plain["bonds"]:
             bond["wall_time_s"] = bond["frequency_wall_time_s"] = 0.0

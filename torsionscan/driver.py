@@ -273,7 +273,37 @@ class BondScanner:
                                 result.energy, how, result.converged, coords)
 
 
-def scan_bond(molecule, bond, relaxer, start, settings, pool=None):
+class FrequencyProcesses:
+    """Worker processes for the frequency stage, started only when a stage is expected to take
+    long enough to repay their start (about 2 s each here: importing the libraries), and kept
+    for the molecule's other bonds. close() when the molecule is done."""
+
+    WORTH_S = 8.0  # expected serial stage time from which spreading it over processes pays (measured)
+
+    def __init__(self, engine_factory, cores):
+        self.engine_factory, self.cores, self.pool = engine_factory, cores, None
+
+    def for_stage(self, expected_s):
+        """The GradientPool to use for a stage expected to take expected_s seconds on one core, or None."""
+        if self.pool is None and self.cores > 1 and expected_s >= self.WORTH_S:
+            self.pool = GradientPool(self.engine_factory, self.cores)
+        return self.pool
+
+    def close(self):
+        if self.pool is not None:
+            self.pool.close()
+
+
+def _expected_frequency_seconds(molecule, bond_scan):
+    """Rough one-core time of a bond's frequency stage: 6N gradients per distinct stationary point
+    (and planar s-cis) at the scan's own seconds per gradient."""
+    profile = bond_scan.profile
+    structures = (len(profile.minima) + len(profile.maxima)) / (2 if bond_scan.symmetric else 1) + 1
+    per_gradient = bond_scan.wall_time_s / max(bond_scan.gradient_evaluations_total, 1)
+    return 6 * molecule.mol.GetNumAtoms() * structures * per_gradient
+
+
+def scan_bond(molecule, bond, relaxer, start, settings, processes=None):
     """Relaxed scan of one dihedral from the start minimum `start` = (coords, energy, hessian)."""
     began = time.perf_counter()
     evaluations_before = relaxer.engine.evaluations
@@ -288,6 +318,7 @@ def scan_bond(molecule, bond, relaxer, start, settings, pool=None):
         wall_time_s=time.perf_counter() - began,
     )
     if settings.frequencies:
+        pool = processes.for_stage(_expected_frequency_seconds(molecule, bond_scan)) if processes else None
         masses = [atom.GetMass() for atom in molecule.mol.GetAtoms()]
         planar_start = None
         if is_diene_bond(molecule.mol, bond.atoms):
@@ -327,8 +358,9 @@ def scan(source, *, bond=None, name=None, charge=None, unpaired_electrons=0, rec
     source: SMILES string, MOL/SDF/XYZ path or RDKit molecule; bond: 1-based "j-k" or "i-j-k-l".
     time_limit_s: wall-clock seconds allowed for the whole molecule (checked before each gradient).
     engine: an engine object for this molecule (engines.Engine); default: the GFN-xTB engine the
-    settings name. cores: processes for the frequency stage's displaced gradients (the default
-    engine only; results identical to one process). Returns a ScanResult; raises InputError,
+    settings name. cores: processes for the frequency stage's displaced gradients, used when a
+    stage is long enough to repay starting them (the default engine only; results identical to
+    one process). Returns a ScanResult; raises InputError,
     CalculationError or TimeLimitExceeded.
     """
     deadline = None if time_limit_s is None else time.monotonic() + time_limit_s
@@ -340,7 +372,7 @@ def scan(source, *, bond=None, name=None, charge=None, unpaired_electrons=0, rec
         raise InputError(
             f"{molecule.smiles}: no conjugated single bond found; pick a bond with --bond j-k (1-based atom numbers)"
         )
-    pool = None
+    processes = None
     if engine is not None:
         _check_capabilities(engine, molecule, settings)
     else:
@@ -350,21 +382,20 @@ def scan(source, *, bond=None, name=None, charge=None, unpaired_electrons=0, rec
             solvation=settings.solvation_model,
         )
         engine = factory()
-        if cores > 1 and settings.frequencies:
-            pool = GradientPool(factory, cores)  # its workers start while the scan runs
+        processes = FrequencyProcesses(factory, cores)
     relaxer = Relaxer(engine, molecule.numbers, deadline, graph_bonds(molecule.mol))
     scans, failed = [], []
     try:
         coords, energy, hessian, start_evaluations = relax_start(molecule, relaxer, settings)
         for b in bonds:
             try:
-                scans.append(scan_bond(molecule, b, relaxer, (coords, energy, hessian), settings, pool))
+                scans.append(scan_bond(molecule, b, relaxer, (coords, energy, hessian), settings, processes))
             except CalculationError as error:
                 log.warning("dihedral %s failed: %s", b.label, error)
                 failed.append((b.label, str(error)))
     finally:
-        if pool is not None:
-            pool.close()
+        if processes is not None:
+            processes.close()
     if not scans:
         raise CalculationError("; ".join(f"bond {label}: {reason}" for label, reason in failed))
     return ScanResult(

@@ -1,9 +1,9 @@
 """Gradients at displaced structures of one molecule, spread over worker processes.
 
 Each worker builds its own engine once (engine_factory, picklable) and answers
-gradients_from_reference for its share of the structures (at least MIN_SHARE of them). Every SCF starts from the reference
-structure's converged wavefunction, so the gradients are bit for bit those of one process doing
-them all. Workers are spawned when the pool is made, so their start-up overlaps the caller's work.
+gradients_from_reference for its share of the structures (at least MIN_SHARE of them). Every SCF
+starts from the reference structure's converged wavefunction, so the gradients are bit for bit
+those of one process doing them all.
 """
 
 import multiprocessing
