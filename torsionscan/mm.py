@@ -7,7 +7,6 @@ other terms stay. Alternatively a table of energies the user computed in any for
 per frame of the scan's multi-frame XYZ file. Energies in kcal/mol, coordinates in Angstrom.
 """
 
-import csv
 import math
 from dataclasses import dataclass
 
@@ -17,6 +16,7 @@ from rdkit.Chem import rdForceFieldHelpers
 
 from . import geometry
 from .errors import InputError
+from .tables import read_csv_table
 from .units import KCAL_KJ
 
 MM_MODELS = ("mmff94",)
@@ -88,18 +88,8 @@ def read_mm_energies(path, frame_count):
 
     Columns: energy_kcal_mol or energy_kj_mol (required, one of them), frame (optional, 1-based).
     """
-    try:
-        with open(path, newline="", encoding="utf-8-sig") as handle:
-            reader = csv.DictReader(handle)
-            columns = {c.strip().lower(): c for c in reader.fieldnames or []}
-            rows = [row for row in reader if any((v or "").strip() for v in row.values() if isinstance(v, str))]
-    except OSError as error:
-        raise InputError(f"cannot read MM energies from {path}: {error.strerror}; check the path") from None
-    except UnicodeDecodeError:
-        raise InputError(f"{path} is not a UTF-8 text table; give the MM energies as a CSV text file") from None
-    except csv.Error as error:
-        raise InputError(f"{path} could not be read as a CSV table ({error}); give the MM energies as a CSV "
-                         "text file") from None
+    columns, numbered = read_csv_table(path, "MM energies", "the MM energies as a CSV text file")
+    rows = [row for _, row in numbered]
     if "energy_kcal_mol" in columns:
         key, factor = columns["energy_kcal_mol"], 1.0
     elif "energy_kj_mol" in columns:

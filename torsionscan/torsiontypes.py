@@ -27,7 +27,6 @@ or exceeds LEAVE_OUT_RATIO times the training error by more than NOISE_KCAL_MOL 
 small are convergence noise of the profiles, not a failure to transfer).
 """
 
-import csv
 import math
 import re
 import time
@@ -38,6 +37,7 @@ from rdkit import Chem
 from rdkit.Chem import rdForceFieldHelpers
 
 from .errors import InputError
+from .tables import read_csv_table
 from .forcefield import bond_residual
 from .mm import quartets_about
 from .molecule import safe_name  # noqa: F401  (importing molecule also silences RDKit's own error log)
@@ -114,19 +114,7 @@ def parse_pattern(name, smarts, classes_text="", row_number=1, where="pattern"):
 
 def read_type_patterns(path):
     """The TypePatterns of a CSV table with columns name, smarts and optionally classes, in table order."""
-    try:
-        with open(path, newline="", encoding="utf-8-sig") as handle:
-            reader = csv.DictReader(handle)
-            columns = {(c or "").strip().lower(): c for c in reader.fieldnames or []}
-            rows = [(reader.line_num, row) for row in reader
-                    if any((v or "").strip() for v in row.values() if isinstance(v, str))]
-    except OSError as error:
-        raise InputError(f"cannot read torsion types from {path}: {error.strerror}; check the path") from None
-    except UnicodeDecodeError:
-        raise InputError(f"{path} is not a UTF-8 text table; give the torsion types as a CSV text file") from None
-    except csv.Error as error:
-        raise InputError(f"{path} could not be read as a CSV table ({error}); give the torsion types as CSV "
-                         "with columns name,smarts") from None
+    columns, rows = read_csv_table(path, "torsion types", "the torsion types as CSV with columns name,smarts")
     if "name" not in columns or "smarts" not in columns:
         raise InputError(f"{path} needs the columns name and smarts (optionally classes): one torsion type per row")
     if not rows:
