@@ -16,6 +16,7 @@ from pathlib import Path
 from xml.sax.saxutils import quoteattr
 
 import matplotlib.pyplot as plt
+import numpy as np
 
 from ..records import to_plain
 from . import atomic_write, bond_stem
@@ -63,18 +64,35 @@ def openmm_quartets_xml(quartets, terms):
 
 def fit_figure(name, fit):
     """Quantum profile with the MM model without torsion terms, as it was, and with the fitted terms."""
-    angles = fit.profile_angles_deg
+    order = np.argsort(fit.profile_angles_deg)
+    angles = np.asarray(fit.profile_angles_deg, dtype=float)[order]
+    # the point at 180 deg is the one at -180: drawn at both ends, so the circle closes
+    at_start, at_end = np.isclose(angles[0], -180.0), np.isclose(angles[-1], 180.0)
+
+    def circle(values):
+        values = np.asarray(values, dtype=float)[order]
+        if at_start and not at_end:
+            return np.append(values, values[0])
+        return np.insert(values, 0, values[-1]) if at_end and not at_start else values
+
+    shown = circle(angles)
+    if at_start and not at_end:
+        shown[-1] = 180.0
+    elif at_end and not at_start:
+        shown[0] = -180.0
     fig, ax = plt.subplots(figsize=(8.0, 5.5), dpi=110)
-    ax.plot(angles, fit.qm_kcal_mol, "o-", color="#1f5fa8", lw=1.5, ms=5, label=f"quantum ({fit.quantum_profile})")
+    ax.plot(shown, circle(fit.qm_kcal_mol), "o-", color="#1f5fa8", lw=1.5, ms=5,
+            label=f"quantum ({fit.quantum_profile})")
     curves = [(fit.mm_without_torsion_kcal_mol, "MM without this bond's torsion terms", "#999999", ":"),
               (fit.mm_full_kcal_mol, f"{fit.mm_model} as it is", "#b23a2e", "--"),
               (fit.mm_with_fit_kcal_mol, "MM with the fitted terms", "#2a7f3f", "-")]
     for values, label, colour, style in curves:
         if values is not None:
-            ax.plot(angles, values, style, color=colour, lw=1.5, label=label)
+            ax.plot(shown, circle(values), style, marker=".", color=colour, lw=1.5, label=label)
     ax.set_xlim(-180, 180)
     ax.set_xticks(range(-180, 181, 45))
-    ax.set_xlabel("dihedral φ / degrees   (0 = s-cis, ±180 = s-trans)")
+    ax.set_xlabel("dihedral φ / degrees   (0 = s-cis, ±180 = s-trans; MM energies at the quantum structures, "
+                  "lines join the scan points)", fontsize=8)
     ax.set_ylabel("relative energy / kcal mol⁻¹")
     atoms = "-".join(str(a + 1) for a in fit.dihedral_atoms)
     ax.set_title(f"{name}: torsion terms for dihedral {atoms}; RMSE vs quantum {fit.rmse_before_kcal_mol:.2f} before, "
