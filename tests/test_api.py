@@ -103,22 +103,16 @@ def test_flags_reach_the_api_and_the_batch_line(result):
     assert progress.flagged == [("butadiene", [("2-3", HYSTERESIS), ("2-3", UNCONVERGED)])]
 
 
-def test_public_names_and_thread_settings():
+def test_public_names_and_thread_settings(monkeypatch):
     names = dir(torsionscan)
     assert "os" not in names and "limit_threads" not in names and "threads" not in names
     assert {"scan", "write", "read", "ScanSettings", "set_threads", "thread_settings"} <= set(names)
-    saved = torsionscan.thread_settings()
-    try:
-        torsionscan.set_threads(3)
-        assert set(torsionscan.thread_settings().values()) == {"3"}
-        with pytest.raises(torsionscan.InputError, match="whole number of threads"):
-            torsionscan.set_threads(0)
-    finally:
-        for variable, value in saved.items():
-            if value is None:
-                os.environ.pop(variable, None)
-            else:
-                os.environ[variable] = value
+    for variable, value in torsionscan.thread_settings().items():  # recorded, so monkeypatch restores them
+        monkeypatch.setenv(variable, value or "1")
+    torsionscan.set_threads(3)
+    assert set(torsionscan.thread_settings().values()) == {"3"}
+    with pytest.raises(torsionscan.InputError, match="whole number of threads"):
+        torsionscan.set_threads(0)
 
 
 @pytest.mark.parametrize("setting, expected", [(None, "1"), ("4", "4"), ("keep", None)])
