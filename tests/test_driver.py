@@ -6,6 +6,7 @@ here independently (dense grid, scipy.integrate.quad), not with the package's ow
 """
 
 import math
+import threading
 
 import numpy as np
 import pytest
@@ -145,7 +146,7 @@ def test_the_scan_coordinate_handles_grid_points_as_tuples():
     assert coordinate.mirror_index((2, 3)) == (10, 9)
     assert len(coordinate.constraints(coordinate.angles_deg((1, 2)))) == 2
     with pytest.raises(NotImplementedError):
-        coordinate.sweep_plan((0, 0))
+        coordinate.sweep_chains((0, 0))
 
 
 def test_an_engine_is_refused_for_what_its_capabilities_do_not_cover():
@@ -159,20 +160,30 @@ def test_an_engine_is_refused_for_what_its_capabilities_do_not_cover():
 
 
 @pytest.mark.xtb
-def test_the_frequency_stage_on_two_cores_gives_the_one_core_result_bit_for_bit(monkeypatch):
-    # every displaced gradient starts from the reference structure's wavefunction, whichever process runs it
-    from torsionscan import driver
-    from torsionscan.engines import pool
+def test_a_scan_on_two_cores_gives_the_one_core_result_bit_for_bit(monkeypatch):
+    # every piece of work (start structure, sweep chain, refinement, share of displaced gradients)
+    # has an engine of its own, so neither the number of threads nor their timing changes a bit
+    from torsionscan import parallel
 
-    made = []
-    monkeypatch.setattr(driver.FrequencyProcesses, "WORTH_S", 0.0)  # spread even this small stage
-    monkeypatch.setattr(driver, "GradientPool", lambda *args: made.append(pool.GradientPool(*args)) or made[-1])
-    settings = torsionscan.ScanSettings(conformers=1, step_deg=30.0)
+    threads_seen = set()
+    real_map = parallel.ParallelRelaxations.map
+
+    def watched(self, piece, items):
+        def noted(relaxer, item):
+            threads_seen.add(threading.current_thread().name)
+            return piece(relaxer, item)
+        return real_map(self, noted, items)
+
+    monkeypatch.setattr(parallel.ParallelRelaxations, "map", watched)
+    monkeypatch.setattr(parallel, "MIN_SHARE", 1)  # split even this small molecule's displacements
+    settings = torsionscan.ScanSettings(conformers=3, step_deg=30.0)
     one = torsionscan.scan("C=CC=O", settings=settings, cores=1).to_dict()
+    threads_seen.discard(threading.current_thread().name)
+    assert not threads_seen  # one core: everything in the caller's thread
     two = torsionscan.scan("C=CC=O", settings=settings, cores=2).to_dict()
-    assert len(made) == 1 and made[0].evaluations > 0  # the two-core scan did use the worker processes
+    assert len(threads_seen) == 2  # two cores: the pieces did run in two threads
     for plain in (one, two):
         for bond in plain["bonds"]:
             bond["wall_time_s"] = bond["frequency_wall_time_s"] = 0.0
-            bond["frequency_gradient_evaluations"] = 0  # each process adds one reference gradient
+            bond["frequency_gradient_evaluations"] = 0  # each share adds one reference gradient
     assert one == two

@@ -9,41 +9,43 @@ from torsionscan.coordinate import ScanCoordinate
 from torsionscan.units import HARTREE_KCAL_MOL
 
 
-def sweep_plan(start, steps_per_turn, symmetric):
-    """The coordinate's visit plan for one dihedral as plain grid indices."""
+def sweep_chains(start, steps_per_turn, symmetric):
+    """The coordinate's visit plan for one dihedral as chains of plain grid indices."""
     coordinate = ScanCoordinate(((0, 1, 2, 3),), ((2, 3),), 360.0 / steps_per_turn, symmetric)
-    return [[index for (index,) in leg] for leg in coordinate.sweep_plan((start,))]
+    return [[index for (index,) in chain] for chain in coordinate.sweep_chains((start,))]
 
 
-def _arrivals(start, legs, modulo=None):
-    """grid index -> set of arrival directions (+1 from below, -1 from above)."""
+def _arrivals(chains, modulo=None):
+    """grid index -> set of arrival directions (+1 from below, -1 from above) of the chains' steps
+    (a chain's first point is turned to from the start structure, not arrived at from a neighbour)."""
     seen = {}
-    for leg in legs:
-        previous = start
-        for index in leg:
+    for chain in chains:
+        for previous, index in zip(chain, chain[1:]):
             key = index % modulo if modulo else index
             seen.setdefault(key, set()).add(1 if index > previous else -1)
-            previous = index
     return seen
 
 
 @pytest.mark.parametrize("start", [0, 3, 11, 12])
-def test_folded_symmetric_sweep_reaches_every_angle_from_both_sides(start):
-    legs = sweep_plan(start, 24, symmetric=True)
-    seen = _arrivals(start, legs)
+def test_folded_symmetric_chains_reach_every_angle_from_both_sides(start):
+    chains = sweep_chains(start, 24, symmetric=True)
+    assert len(chains) == 2
+    seen = _arrivals(chains)
     for index in range(1, 12):
-        assert seen.get(index) == {1, -1} or (index == start and seen.get(index))
-    assert set(seen) | {start} == set(range(13))
-    assert sum(len(leg) for leg in legs) <= 25
+        assert seen.get(index) == {1, -1}
+    assert seen[0] == {-1} and seen[12] == {1}  # the ends: one arrival each, plus a chain's start
+    assert sum(len(chain) for chain in chains) == 26  # every point of 0..180 twice
 
 
 @pytest.mark.parametrize("start", [0, 5, 23])
-def test_full_circle_sweeps_reach_every_angle_from_both_sides(start):
-    legs = sweep_plan(start, 24, symmetric=False)
-    seen = _arrivals(start, legs, modulo=24)
+def test_full_circle_chains_reach_every_angle_from_both_sides(start):
+    chains = sweep_chains(start, 24, symmetric=False)
+    assert len(chains) == 2 and chains[0][0] == start
+    seen = _arrivals([[start] + chains[1]] + chains[:1], modulo=24)  # the down chain starts next to the start
     for index in range(24):
         if index != start % 24:
             assert seen[index] == {1, -1}
+    assert sum(len(chain) for chain in chains) == 47
 
 
 def _record(kind, angle, kcal):

@@ -572,8 +572,9 @@ def build_parser():
                                   "(needs the [dft] extra)")
     scan_parser.add_argument("--dft-threads", type=int, default=None, help="threads for DFT (default: all cores)")
     scan_parser.add_argument("--cores", type=int, default=None,
-                             help="processes for the frequency stage's displaced gradients (default: all cores; "
-                                  "results are identical with any number)")
+                             help="cores for the scan's independent pieces: start structures, the two sweep "
+                                  "chains, refinements, displaced gradients (default: all cores; results are "
+                                  "identical with any number)")
     _add_refine_options(scan_parser, "--refine")
     scan_parser.add_argument("--fit-for", choices=["mmff94"],
                              help="also fit dihedral terms that complete this MM model (see 'fit')")

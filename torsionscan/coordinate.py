@@ -5,11 +5,13 @@ Grid points are tuples of integer indices, one per dihedral (angle = index * ste
 in driver.py only ever handles such tuples. Coordinates are (N, 3) arrays in Bohr, Hessians
 (3N, 3N) in Hartree/Bohr^2.
 
-Visit plan (one dihedral). Chiral molecules: one leg up and one leg down round the full circle
-from the start, so every angle is reached from both sides. Molecules without stereocentres have
-E(phi) = E(-phi): one leg down round the whole circle folded onto 0..180 deg (going down through
--phi is the mirror image of going up through +phi), which reaches every angle in 0..180 from
-both directions at half the cost; the other half of the circle is filled by mirror images.
+Visit plan (one dihedral): two chains, one in each direction, so every angle is reached from both
+sides; each chain starts from the start structure turned rigidly to its first point and then
+goes on point by point from its own previous point, so the two are independent of each other
+(they run side by side on two cores). Chiral molecules: one chain up and one down round the full
+circle from the start. Molecules without stereocentres have E(phi) = E(-phi): only 0..180 deg is
+computed, one chain down from 180 to 0 and one up from 0 to 180; the other half of the circle is
+filled by mirror images.
 """
 
 from dataclasses import dataclass
@@ -103,20 +105,18 @@ class ScanCoordinate:
             block = step @ block
         return coords, block @ hessian @ block.T
 
-    def sweep_plan(self, start):
-        """Legs of grid points visited after the start point, each leg continuing from the start
-        point (see the module docstring); start is canonical, or in 0..half for a symmetric scan."""
+    def sweep_chains(self, start):
+        """The two chains of grid points of the visit plan (see the module docstring), each a list
+        visited in order; start is the start structure's grid point (canonical, or in 0..half for
+        a symmetric scan)."""
         if len(self.dihedrals) != 1:
             raise NotImplementedError("a visit plan over more than one dihedral is not offered yet")
         (first,) = start
         n = self.steps_per_turn
         if self.mirror_symmetric:
             half = n // 2
-            down = list(range(first - 1, -1, -1))
-            up = list(range(1, half + 1))
-            back = list(range(half - 1, first - 1, -1))
-            return [[(i,) for i in down + up + back]]
-        return [[(first + s,) for s in range(1, n)], [(first - s,) for s in range(1, n)]]
+            return [[(i,) for i in range(half, -1, -1)], [(i,) for i in range(half + 1)]]
+        return [[(first + s,) for s in range(n)], [(first - s,) for s in range(1, n)]]
 
     def start_point(self, coords, hessian):
         """(grid point, coords, hessian) to start the sweeps from a relaxed structure: the nearest

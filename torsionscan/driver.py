@@ -1,12 +1,14 @@
 """The scan driver: start structure, two-way sweeps over a scan coordinate, refinement of the
 stationary points, frequencies, and the scan() entry point.
 
-From the start minimum the coordinate is driven over its grid in the order of its visit plan
-(coordinate.ScanCoordinate), each point warm-started from its neighbour (geometry rigidly turned
-about the bond and the neighbour's quasi-Newton Hessian turned with it). Every grid point is
-reached once from each direction; where the two arrivals differ the lower energy is kept and a
-difference above the hysteresis threshold is recorded. The profile is then analysed by
-analysis.analyse_profile with the refinement of its minima and maxima done here.
+From the start minimum the coordinate is driven over its grid along the two chains of its visit
+plan (coordinate.ScanCoordinate), each point warm-started from its neighbour (geometry rigidly
+turned about the bond and the neighbour's quasi-Newton Hessian turned with it). Every grid point
+is reached once from each direction; where the two arrivals differ the lower energy is kept and
+a difference above the hysteresis threshold is recorded. The profile is then analysed by
+analysis.analyse_profile with the refinement of its minima and maxima done here. Independent
+pieces (start structures, the two chains, the relaxations of a refinement stage, shares of the
+displaced gradients) run side by side through parallel.ParallelRelaxations.
 """
 
 import functools
@@ -21,14 +23,14 @@ from .analysis import analyse_profile, display_angle, in_arc, is_symmetric_rotor
 from .bonding import graph_bonds
 from .coordinate import ScanCoordinate, mirror, mirror_hessian
 from .engines import CHARGE, CONJUGATION, SOLVENT, SPIN, make_engine
-from .engines.pool import GradientPool
 from .errors import CalculationError, InputError
 from .freeenergy import add_free_energies, rotor_and_rates
 from .molecule import (
     find_conjugated_bonds, is_diene_bond, load_molecule, select_bond, side_atoms, starting_structures,
 )
+from .parallel import ParallelRelaxations
 from .records import BondScan, Hysteresis, ScanPoint, ScanResult, StationaryRecord
-from .relax import BONDING_CHANGED, Relaxer, RelaxJob
+from .relax import BONDING_CHANGED, RelaxJob
 from .settings import ScanSettings
 from .units import ANGSTROM_BOHR, HARTREE_KCAL_MOL, wrap_deg
 
@@ -36,23 +38,18 @@ log = logging.getLogger(__name__)
 MAX_GAP_DEG = 90.0  # widest arc without a converged point that a profile may be fitted across
 
 
-def relax_start(molecule, relaxer, settings):
-    """Lowest minimum among the seeded start structures: (coords_bohr, energy, hessian, evaluations)."""
-    best = None
-    evaluations = 0
-    errors = []
-    for coords in starting_structures(molecule, settings.conformers, settings.seed):
-        try:
-            result = relaxer.relax(coords * ANGSTROM_BOHR, settings.start_convergence)
-        except CalculationError as error:
-            errors.append(str(error))
-            continue
-        evaluations += result.evaluations
-        if best is None or (result.converged, -result.energy) > (best.converged, -best.energy):
-            best = result
-    if best is None:
-        raise CalculationError(errors[0] if errors else "no start structure could be optimised")
-    return best.x.reshape(-1, 3), best.energy, best.hessian, evaluations
+def relax_start(molecule, workers, settings):
+    """Lowest minimum among the seeded start structures, relaxed side by side (workers:
+    parallel.ParallelRelaxations): (coords_bohr, energy, hessian, gradient evaluations)."""
+    before = workers.evaluations
+    jobs = [RelaxJob(coords * ANGSTROM_BOHR, settings.start_convergence)
+            for coords in starting_structures(molecule, settings.conformers, settings.seed)]
+    results = workers.relax_jobs(jobs)
+    done = [r for r in results if not isinstance(r, CalculationError)]
+    if not done:
+        raise CalculationError(str(results[0]) if results else "no start structure could be optimised")
+    best = max(done, key=lambda r: (r.converged, -r.energy))  # the first of equals, as in order
+    return best.x.reshape(-1, 3), best.energy, best.hessian, workers.evaluations - before
 
 
 def _failed_point(target_deg, coords, evaluations, reason):
@@ -66,20 +63,19 @@ def _failed_point(target_deg, coords, evaluations, reason):
 class BondScanner:
     """Carries the state of one bond's scan (visits with their Hessians) between its stages."""
 
-    def __init__(self, molecule, bond, relaxer, settings, relax_many=None):
+    def __init__(self, molecule, bond, settings, relax_many, conjugation=False):
         """relax_many(jobs) -> results runs the refinement's independent relaxations (jobs:
-        RelaxJob; results: OptimizationResult or the CalculationError, in order); default: one
-        after the other with `relaxer`."""
+        RelaxJob; results: OptimizationResult or the CalculationError, in order); conjugation:
+        the sweeps' engines offer engines.CONJUGATION (bond order and gap at every point)."""
         self.bond = bond
-        self.relaxer = relaxer
         self.settings = settings
-        self.relax_many = relax_many or self._relax_in_turn
+        self.relax_many = relax_many
         self.coordinate = ScanCoordinate(
             dihedrals=(bond.atoms,), moving=(tuple(int(a) for a in side_atoms(molecule, *bond.atoms[1:3])),),
             step_deg=settings.step_deg, mirror_symmetric=not molecule.has_stereocentres,
         )
         self.symmetric = self.coordinate.mirror_symmetric
-        self.conjugation = CONJUGATION in relaxer.engine.capabilities
+        self.conjugation = conjugation
         self.visits = {}  # canonical grid point -> list of (ScanPoint, hessian)
 
     def _point(self, result, index):
@@ -97,36 +93,40 @@ class BondScanner:
         turned, turned_hessian = self.coordinate.turn(coords, hessian, angles_deg)
         return RelaxJob(turned, convergence, turned_hessian, tuple(self.coordinate.constraints(angles_deg)))
 
-    def relax_at(self, coords, hessian, angles_deg, convergence):
-        """Turn a structure to the angles and relax it there; the optimisation result."""
-        job = self.held_job(coords, hessian, angles_deg, convergence)
-        return self.relaxer.relax(job.coords_bohr, job.convergence, job.hessian, job.constraints)
-
-    def _visit(self, index, coords, hessian):
+    def _visit(self, relaxer, index, coords, hessian):
+        """(index, ScanPoint, Hessian) of grid point index relaxed from coords turned to it."""
         angle = float(wrap_deg(self.coordinate.angles_deg(index)[0]))
-        evaluations_before = self.relaxer.engine.evaluations
+        evaluations_before = relaxer.engine.evaluations
         try:
-            result = self.relax_at(coords, hessian, self.coordinate.angles_deg(index), self.settings.point_convergence)
+            job = self.held_job(coords, hessian, self.coordinate.angles_deg(index), self.settings.point_convergence)
+            result = relaxer.relax(job.coords_bohr, job.convergence, job.hessian, job.constraints)
             point = self._point(result, index)
             if self.conjugation:
-                order, gap = self.relaxer.engine.conjugation(point.coords_bohr, *self.bond.atoms[1:3])
+                order, gap = relaxer.engine.conjugation(point.coords_bohr, *self.bond.atoms[1:3])
                 point = replace(point, central_bond_order=order, homo_lumo_gap_ev=gap)
         except CalculationError as error:
-            used = self.relaxer.engine.evaluations - evaluations_before
-            self.record_visit(index, _failed_point(angle, coords, used, str(error)), hessian)
+            used = relaxer.engine.evaluations - evaluations_before
             log.warning("dihedral %s: point %.1f deg failed: %s", self.bond.label, angle, error)
-            return coords, hessian
-        self.record_visit(index, point, result.hessian)
-        return point.coords_bohr, result.hessian
+            return index, _failed_point(angle, coords, used, str(error)), hessian
+        return index, point, result.hessian
 
-    def sweep(self, start_coords, start_hessian):
-        """Run all sweeps from the start structure."""
+    def sweep(self, start_coords, start_hessian, workers):
+        """Run both chains of the visit plan from the start structure, side by side (workers:
+        parallel.ParallelRelaxations); the visits recorded in chain order."""
         start, coords, hessian = self.coordinate.start_point(start_coords, start_hessian)
-        first = self._visit(start, coords, hessian)
-        for leg in self.coordinate.sweep_plan(start):
-            coords, hessian = first
-            for index in leg:
-                coords, hessian = self._visit(index, coords, hessian)
+
+        def run_chain(relaxer, chain):
+            visits, here = [], (coords, hessian)
+            for index in chain:
+                visits.append(self._visit(relaxer, index, *here))
+                point, point_hessian = visits[-1][1:]
+                if np.isfinite(point.energy_hartree):
+                    here = (point.coords_bohr, point_hessian)
+            return visits
+
+        for visits in workers.map(run_chain, self.coordinate.sweep_chains(start)):
+            for index, point, hessian in visits:
+                self.record_visit(index, point, hessian)
 
     def chosen_points(self):
         """Best visit per grid point (converged first, then lowest energy), plus hysteresis records."""
@@ -197,15 +197,6 @@ class BondScanner:
         usable = [item for item in circle if np.isfinite(item[0].energy_hartree)]
         return min(usable, key=lambda item: abs(wrap_deg(item[0].angle_deg - angle_deg)))
 
-    def _relax_in_turn(self, jobs):
-        results = []
-        for job in jobs:
-            try:
-                results.append(self.relaxer.relax(job.coords_bohr, job.convergence, job.hessian, job.constraints))
-            except CalculationError as error:
-                results.append(error)
-        return results
-
     def refine(self, circle, requests):
         """Records of fitted stationary points, requests: (stationary, basin) pairs. Minima by free
         optimisation (constrained at the fitted angle if that leaves the basin), maxima constrained;
@@ -273,67 +264,34 @@ class BondScanner:
                                 result.energy, how, result.converged, coords)
 
 
-class FrequencyProcesses:
-    """Worker processes for the frequency stage, started only when a stage is expected to take
-    long enough to repay their start (about 2 s each here: importing the libraries), and kept
-    for the molecule's other bonds. close() when the molecule is done."""
-
-    WORTH_S = 8.0  # expected serial stage time from which spreading it over processes pays (measured)
-
-    def __init__(self, engine_factory, cores):
-        self.engine_factory, self.cores, self.pool = engine_factory, cores, None
-
-    def for_stage(self, expected_s):
-        """The GradientPool to use for a stage expected to take expected_s seconds on one core, or None."""
-        if self.pool is None and self.cores > 1 and expected_s >= self.WORTH_S:
-            self.pool = GradientPool(self.engine_factory, self.cores)
-        return self.pool
-
-    def close(self):
-        if self.pool is not None:
-            self.pool.close()
-
-
-def _expected_frequency_seconds(molecule, bond_scan):
-    """Rough one-core time of a bond's frequency stage: 6N gradients per distinct stationary point
-    (and planar s-cis) at the scan's own seconds per gradient."""
-    profile = bond_scan.profile
-    structures = (len(profile.minima) + len(profile.maxima)) / (2 if bond_scan.symmetric else 1) + 1
-    per_gradient = bond_scan.wall_time_s / max(bond_scan.gradient_evaluations_total, 1)
-    return 6 * molecule.mol.GetNumAtoms() * structures * per_gradient
-
-
-def scan_bond(molecule, bond, relaxer, start, settings, processes=None):
-    """Relaxed scan of one dihedral from the start minimum `start` = (coords, energy, hessian)."""
+def scan_bond(molecule, bond, workers, start, settings, conjugation=False):
+    """Relaxed scan of one dihedral from the start minimum `start` = (coords, energy, hessian);
+    workers: parallel.ParallelRelaxations; conjugation: its engines offer engines.CONJUGATION."""
     began = time.perf_counter()
-    evaluations_before = relaxer.engine.evaluations
-    scanner = BondScanner(molecule, bond, relaxer, settings)
-    scanner.sweep(start[0], start[2])
+    evaluations_before = workers.evaluations
+    scanner = BondScanner(molecule, bond, settings, workers.relax_jobs, conjugation)
+    scanner.sweep(start[0], start[2], workers)
     circle, points, profile, hysteresis = scanner.analyse()
     bond_scan = BondScan(
         dihedral_atoms=bond.atoms, conjugated=bond.conjugated, symmetric=scanner.symmetric,
         points=points, profile=profile, hysteresis=hysteresis,
         hysteresis_threshold_kcal_mol=settings.hysteresis_kcal_mol,
-        gradient_evaluations_total=relaxer.engine.evaluations - evaluations_before,
+        gradient_evaluations_total=workers.evaluations - evaluations_before,
         wall_time_s=time.perf_counter() - began,
     )
     if settings.frequencies:
-        pool = processes.for_stage(_expected_frequency_seconds(molecule, bond_scan)) if processes else None
         masses = [atom.GetMass() for atom in molecule.mol.GetAtoms()]
         planar_start = None
         if is_diene_bond(molecule.mol, bond.atoms):
             planar_start = scanner.nearest(circle, 0.0)
-        def evaluations():
-            return relaxer.engine.evaluations + (pool.evaluations if pool else 0)
-
-        scanned, started = evaluations(), time.perf_counter()
+        scanned, started = workers.evaluations, time.perf_counter()
         try:
             bond_scan = replace(bond_scan, profile=add_free_energies(
-                bond_scan.profile, bond.atoms, bond_scan.symmetric, relaxer, masses, settings,
-                planar_start and (planar_start[0].coords_bohr, planar_start[1]), scanner.coordinate.moving[0], pool))
+                bond_scan.profile, bond.atoms, bond_scan.symmetric, workers, masses, settings,
+                planar_start and (planar_start[0].coords_bohr, planar_start[1]), scanner.coordinate.moving[0]))
         except (CalculationError, ValueError, np.linalg.LinAlgError) as error:
             log.warning("dihedral %s: frequencies failed (%s); free energies left out", bond.label, error)
-        bond_scan = replace(bond_scan, frequency_gradient_evaluations=evaluations() - scanned,
+        bond_scan = replace(bond_scan, frequency_gradient_evaluations=workers.evaluations - scanned,
                             frequency_wall_time_s=time.perf_counter() - started)
     profile = rotor_and_rates(bond_scan.profile, molecule.mol, bond.atoms, settings.temperatures_k,
                               settings.scis_window_deg)
@@ -357,11 +315,11 @@ def scan(source, *, bond=None, name=None, charge=None, unpaired_electrons=0, rec
 
     source: SMILES string, MOL/SDF/XYZ path or RDKit molecule; bond: 1-based "j-k" or "i-j-k-l".
     time_limit_s: wall-clock seconds allowed for the whole molecule (checked before each gradient).
-    engine: an engine object for this molecule (engines.Engine); default: the GFN-xTB engine the
-    settings name. cores: processes for the frequency stage's displaced gradients, used when a
-    stage is long enough to repay starting them (the default engine only; results identical to
-    one process). Returns a ScanResult; raises InputError,
-    CalculationError or TimeLimitExceeded.
+    engine: an engine object for this molecule (engines.Engine), used for everything in turn;
+    default: a fresh GFN-xTB engine of the settings' kind for each independent piece of work.
+    cores: threads for those pieces (start structures, the two sweep chains, refinement stages,
+    displaced gradients; the default engines only), results identical for any number. Returns a
+    ScanResult; raises InputError, CalculationError or TimeLimitExceeded.
     """
     deadline = None if time_limit_s is None else time.monotonic() + time_limit_s
     settings = settings or ScanSettings()
@@ -372,9 +330,9 @@ def scan(source, *, bond=None, name=None, charge=None, unpaired_electrons=0, rec
         raise InputError(
             f"{molecule.smiles}: no conjugated single bond found; pick a bond with --bond j-k (1-based atom numbers)"
         )
-    processes = None
     if engine is not None:
         _check_capabilities(engine, molecule, settings)
+        factory, cores = (lambda: engine), 1
     else:
         factory = functools.partial(
             make_engine, molecule.numbers, charge=molecule.charge, unpaired_electrons=molecule.unpaired_electrons,
@@ -382,20 +340,16 @@ def scan(source, *, bond=None, name=None, charge=None, unpaired_electrons=0, rec
             solvation=settings.solvation_model,
         )
         engine = factory()
-        processes = FrequencyProcesses(factory, cores)
-    relaxer = Relaxer(engine, molecule.numbers, deadline, graph_bonds(molecule.mol))
+    conjugation = CONJUGATION in engine.capabilities
     scans, failed = [], []
-    try:
-        coords, energy, hessian, start_evaluations = relax_start(molecule, relaxer, settings)
+    with ParallelRelaxations(factory, molecule.numbers, cores, deadline, graph_bonds(molecule.mol)) as workers:
+        coords, energy, hessian, start_evaluations = relax_start(molecule, workers, settings)
         for b in bonds:
             try:
-                scans.append(scan_bond(molecule, b, relaxer, (coords, energy, hessian), settings, processes))
+                scans.append(scan_bond(molecule, b, workers, (coords, energy, hessian), settings, conjugation))
             except CalculationError as error:
                 log.warning("dihedral %s failed: %s", b.label, error)
                 failed.append((b.label, str(error)))
-    finally:
-        if processes is not None:
-            processes.close()
     if not scans:
         raise CalculationError("; ".join(f"bond {label}: {reason}" for label, reason in failed))
     return ScanResult(

@@ -16,11 +16,11 @@ from dataclasses import dataclass, replace
 import numpy as np
 
 from . import geometry
-from .errors import CalculationError
 from .coordinate import DihedralConstraint
-from .errors import InputError
+from .errors import CalculationError, InputError
 from .molecule import side_atoms
 from .records import Interconversion, Readiness, RrhoPopulations, StationaryRecord
+from .relax import RelaxJob
 from .rotor import (
     BOLTZMANN_WINDOW_RT, conformer_free_energies, eyring_rate, half_life_s, reduced_moment_of_inertia, region_weights,
     rotor_populations, torsional_levels, well_fundamentals, wigner_transmission,
@@ -160,27 +160,12 @@ def readiness(minima, planar, temperatures_k):
     return tuple(records)
 
 
-def displaced_gradients(relaxer, pool=None):
-    """gradients_at(reference, structures) for Hessians: through the pool (engines.pool.GradientPool)
-    or the relaxer's engine, each SCF from the reference's wavefunction where the engine offers that
-    (gradients_from_reference), else one gradient after another; the deadline checked first."""
-    source = pool or relaxer.engine
-    if not hasattr(source, "gradients_from_reference"):
-        return lambda reference, structures: [relaxer.gradient(s) for s in structures]
-
-    def gradients_at(reference, structures):
-        relaxer.check_deadline()
-        return source.gradients_from_reference(reference, structures)
-
-    return gradients_at
-
-
-def add_free_energies(profile, dihedral_atoms, symmetric, relaxer, masses_amu, settings, planar_scis_start=None,
-                      moving_atoms=None, pool=None):
+def add_free_energies(profile, dihedral_atoms, symmetric, workers, masses_amu, settings, planar_scis_start=None,
+                      moving_atoms=None):
     """The ProfileAnalysis with vibrations at its minima and maxima, RRHO populations and, when
     planar_scis_start (coords, hessian) is given (dienes), the planar s-cis record and readiness.
-    pool: an engines.pool.GradientPool for the displaced gradients (default: the relaxer's engine)."""
-    hessians = Hessians(displaced_gradients(relaxer, pool), masses_amu)
+    workers: a parallel.ParallelRelaxations (its displaced gradients and relaxations)."""
+    hessians = Hessians(workers.gradients_from_reference, masses_amu)
     atoms, temperatures = dihedral_atoms, settings.temperatures_k
     minima = _with_vibrations(profile.minima, _analyse_all(profile.minima, hessians, masses_amu, atoms,
                                                            temperatures, symmetric, moving_atoms))
@@ -196,7 +181,10 @@ def add_free_energies(profile, dihedral_atoms, symmetric, relaxer, masses_amu, s
             how = f"the {at_zero.kind} at 0 deg, torsion frozen in the frequencies"
         else:
             start, hessian = planar_scis_start
-            result = relaxer.relax(start, settings.refine_convergence, hessian, [DihedralConstraint(atoms, 0.0)])
+            (result,) = workers.relax_jobs([RelaxJob(start, settings.refine_convergence, hessian,
+                                                     (DihedralConstraint(atoms, 0.0),))])
+            if isinstance(result, CalculationError):
+                raise result
             if not np.isfinite(result.energy):
                 raise CalculationError("the planar s-cis structure could not be optimised")
             energy, coords, converged = result.energy, result.x.reshape(-1, 3), result.converged

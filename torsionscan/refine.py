@@ -184,9 +184,7 @@ def _refine_all(result, bond, relaxations):
     settings, numbers = result.settings, relaxations.numbers
     sources = bond.relaxed_points
     molecule = Molecule(result.name, result.mol, result.charge, result.unpaired_electrons)
-    scanner = BondScanner(molecule, TorsionBond(bond.dihedral_atoms, bond.conjugated),
-                          Relaxer(relaxations.engine_factory(), numbers, bonds=relaxations.bonds), settings,
-                          relaxations)
+    scanner = BondScanner(molecule, TorsionBond(bond.dihedral_atoms, bond.conjugated), settings, relaxations)
     jobs = [RelaxJob(p.coords_bohr, settings.point_convergence, None,
                      (DihedralConstraint(bond.dihedral_atoms, math.radians(p.angle_deg)),)) for p in sources]
     energies = []

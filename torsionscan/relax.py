@@ -8,7 +8,7 @@ import numpy as np
 
 from . import geometry
 from .bonding import bonding_changes
-from .errors import CalculationError, TimeLimitExceeded
+from .errors import CalculationError, TimeLimitExceeded, TorsionScanError
 from .modelhessian import lindh_hessian
 from .optimize import minimize
 
@@ -26,20 +26,29 @@ class RelaxJob:
     constraints: tuple = ()
 
 
+class Stopped(TorsionScanError):
+    """Work given up at its next gradient because the stage it belongs to was stopped."""
+
+
 class Relaxer:
     """Minimisations of one molecule with one engine (Bohr, Hartree), within an optional deadline;
-    given the molecule's bonds (bonding.graph_bonds), a relaxation that changes them fails."""
+    given the molecule's bonds (bonding.graph_bonds), a relaxation that changes them fails; once
+    the optional threading.Event `stop` is set, the next gradient raises Stopped."""
 
-    def __init__(self, engine, numbers, deadline=None, bonds=None):
+    def __init__(self, engine, numbers, deadline=None, bonds=None, stop=None):
         self.engine = engine
         self.numbers = numbers
         self.deadline = deadline  # time.monotonic() value after which no new gradient is started
         self.bonds = bonds
+        self.stop = stop
 
     def check_deadline(self):
-        """TimeLimitExceeded once the deadline has passed."""
+        """TimeLimitExceeded once the deadline has passed; Stopped once `stop` is set."""
+        if self.stop is not None and self.stop.is_set():
+            raise Stopped("stopped before this gradient")
         if self.deadline is not None and time.monotonic() > self.deadline:
-            raise TimeLimitExceeded(f"time limit reached after {self.engine.evaluations} gradient evaluations")
+            done = f" after {self.engine.evaluations} gradient evaluations" if self.engine is not None else ""
+            raise TimeLimitExceeded(f"time limit reached{done}")
 
     def _objective(self, x):
         self.check_deadline()

@@ -81,10 +81,11 @@ class WarmStartEngine:
         energy, gradient = self._read(result)
         return float(energy), np.array(gradient, dtype=float)
 
-    def gradients_from_reference(self, reference_bohr, structures_bohr):
+    def gradients_from_reference(self, reference_bohr, structures_bohr, before_each=None):
         """Gradients (N, 3) in Hartree/Bohr at each structure (N, 3) Bohr, every SCF started from the
         converged wavefunction at reference_bohr (itself computed from scratch): the values do not
-        depend on their order or on which process computes them (finite-difference Hessians)."""
+        depend on their order or on which thread computes them (finite-difference Hessians).
+        before_each(): called before each structure's SCF (a deadline check that may raise)."""
         reference_bohr = np.ascontiguousarray(reference_bohr, dtype=float)
         self.evaluations += 1 + len(structures_bohr)
         try:
@@ -92,6 +93,8 @@ class WarmStartEngine:
             reference = calculator.singlepoint()
             gradients = []
             for coords in structures_bohr:
+                if before_each is not None:
+                    before_each()
                 coords = np.ascontiguousarray(coords, dtype=float)
                 self._move(calculator, coords)
                 try:

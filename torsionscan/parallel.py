@@ -1,0 +1,120 @@
+"""Independent relaxations and gradients of one molecule, run side by side in threads.
+
+The GFN-xTB libraries (xtb-python and tblite) release Python's lock while they compute, so a
+few threads with one OpenMP thread each keep the cores busy without the start cost of worker
+processes (about 2 s each here, for importing the libraries). Every piece of work gets its own
+engine from the factory, made for it alone: its SCFs never start from another piece's
+wavefunction, so the results are the same bits whatever the number of threads and whichever
+piece finishes first. One thread runs the pieces in the caller's thread, in order.
+"""
+
+import threading
+from concurrent.futures import ThreadPoolExecutor
+
+import numpy as np
+
+from .errors import CalculationError
+from .relax import Relaxer
+
+MIN_SHARE = 8  # fewest displaced structures worth a thread (each share pays one reference SCF)
+
+
+class ParallelRelaxations:
+    """Relaxers of one molecule for pieces of work run in `threads` threads.
+
+    engine_factory() makes a fresh engine (or returns the one shared engine, with threads=1);
+    numbers, deadline, bonds as for relax.Relaxer. map() runs pieces and counts their gradients;
+    relax_jobs() and gradients_from_reference() are the two kinds of piece the scan needs;
+    `evaluations` counts the gradients of every piece run so far.
+    Use as a context manager: leaving it stops the pieces still running at their next gradient.
+    """
+
+    def __init__(self, engine_factory, numbers, threads=1, deadline=None, bonds=None):
+        self.engine_factory = engine_factory
+        self.numbers = numbers
+        self.threads = max(1, int(threads))
+        self.deadline = deadline
+        self.bonds = bonds
+        self.evaluations = 0
+        self._stop = threading.Event()
+        self._executor = ThreadPoolExecutor(self.threads, thread_name_prefix="torsionscan") if self.threads > 1 else None
+
+    def relaxer(self):
+        """A Relaxer with an engine of its own, stopped when a piece beside it fails."""
+        return Relaxer(self.engine_factory(), self.numbers, self.deadline, self.bonds, self._stop)
+
+    def check_deadline(self):
+        """TimeLimitExceeded once the deadline has passed."""
+        Relaxer(None, self.numbers, self.deadline).check_deadline()
+
+    def map(self, piece, items):
+        """[piece(relaxer, item) for each item], in order, each with a relaxer of its own; the
+        first exception a piece raises is raised here once the others have stopped."""
+        def run(item):
+            relaxer = self.relaxer()
+            before = relaxer.engine.evaluations
+            return piece(relaxer, item), relaxer.engine.evaluations - before
+
+        items = list(items)
+        if self._executor is None or len(items) < 2:
+            done = []
+            for item in items:
+                done.append(run(item))
+                self.evaluations += done[-1][1]
+            return [result for result, _ in done]
+        futures = [self._executor.submit(run, item) for item in items]
+        try:
+            done = [future.result() for future in futures]
+        except BaseException:
+            self._stop.set()  # the other pieces stop at their next gradient (relax.Stopped)
+            for future in futures:
+                future.cancel()
+            for future in futures:
+                if not future.cancelled():
+                    future.exception()  # wait for it
+            self._stop.clear()
+            raise
+        self.evaluations += sum(count for _, count in done)
+        return [result for result, _ in done]
+
+    def relax_jobs(self, jobs):
+        """Each relax.RelaxJob relaxed on its own engine, in order: the OptimizationResult or the
+        CalculationError it raised."""
+        def relax(relaxer, job):
+            try:
+                return relaxer.relax(job.coords_bohr, job.convergence, job.hessian, job.constraints)
+            except CalculationError as error:
+                return error
+
+        return self.map(relax, jobs)
+
+    def gradients_from_reference(self, reference_bohr, structures_bohr):
+        """Gradients (N, 3) in Hartree/Bohr at each structure (N, 3) Bohr, in order, the structures split
+        into shares of at least MIN_SHARE, each SCF started from the reference structure's
+        wavefunction (engines' gradients_from_reference); the deadline checked first."""
+        self.check_deadline()
+        count = max(1, min(self.threads, len(structures_bohr) // MIN_SHARE))
+        shares = [s for s in np.array_split(np.arange(len(structures_bohr)), count) if len(s)]
+
+        def gradients(relaxer, share):
+            engine = relaxer.engine
+            if not hasattr(engine, "gradients_from_reference"):
+                return [relaxer.gradient(structures_bohr[i]) for i in share]
+            return engine.gradients_from_reference(reference_bohr, [structures_bohr[i] for i in share],
+                                                   before_each=relaxer.check_deadline)
+
+        return [g for share in self.map(gradients, shares) for g in share]
+
+    def close(self):
+        """Stop what is still running and end the threads."""
+        self._stop.set()
+        if self._executor is not None:
+            self._executor.shutdown(wait=True, cancel_futures=True)
+
+    def __enter__(self):
+        return self
+
+    def __exit__(self, *exc):
+        self.close()
+        return False
+
