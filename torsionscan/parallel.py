@@ -9,7 +9,7 @@ piece finishes first. One thread runs the pieces in the caller's thread, in orde
 """
 
 import threading
-from concurrent.futures import ThreadPoolExecutor
+from concurrent.futures import FIRST_EXCEPTION, ThreadPoolExecutor, wait
 
 import numpy as np
 
@@ -64,6 +64,10 @@ class ParallelRelaxations:
             return [result for result, _ in done]
         futures = [self._executor.submit(run, item) for item in items]
         try:
+            wait(futures, return_when=FIRST_EXCEPTION)
+            failed = next((f for f in futures if f.done() and f.exception() is not None), None)
+            if failed is not None:
+                raise failed.exception()
             done = [future.result() for future in futures]
         except BaseException:
             self._stop.set()  # the other pieces stop at their next gradient (relax.Stopped)
