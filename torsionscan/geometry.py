@@ -88,12 +88,14 @@ def rotate_about_bond(coords, j, k, moving, angle):
 def rigid_body_directions(coords):
     """Orthonormal rows spanning the infinitesimal translations and rotations, shape (<=6, 3N)."""
     n = len(coords)
-    centred = coords - coords.mean(axis=0)
-    modes = []
-    for axis in np.eye(3):
-        modes.append(np.tile(axis, n))
-        modes.append(np.cross(axis, centred).ravel())
-    return orthonormal_rows(np.array(modes))
+    x, y, z = (coords - coords.mean(axis=0)).T
+    zero = np.zeros(n)
+    modes = np.zeros((6, n, 3))
+    modes[0, :, 0] = modes[2, :, 1] = modes[4, :, 2] = 1.0  # translations
+    modes[1] = np.column_stack((zero, -z, y))  # rotations: axis x (coords - centre) about x, y, z
+    modes[3] = np.column_stack((z, zero, -x))
+    modes[5] = np.column_stack((-y, x, zero))
+    return orthonormal_rows(modes.reshape(6, -1))
 
 
 def orthonormal_rows(rows):

@@ -8,6 +8,7 @@ are registered, xtb-python (``xtb``) and ``tblite``; ``dft.py`` (PySCF) and ``mo
 analytic model potential) are engines of the same protocol made directly.
 """
 
+import functools
 from typing import Protocol
 
 import numpy as np
@@ -76,16 +77,23 @@ def _tblite():
 _REGISTRY = {"xtb-python": _xtb_python, "tblite": _tblite}
 
 
+_MODULES = {"xtb-python": "xtb.interface", "tblite": "tblite.interface"}
+
+
+@functools.cache
+def is_available(backend):
+    """Whether the backend's library imports in this Python (asked once: importing tblite alone
+    takes about 0.2 s, a third of a small molecule's whole scan)."""
+    try:
+        __import__(_MODULES[backend])
+    except ImportError:
+        return False
+    return True
+
+
 def available_backends():
     """Names of the engine backends importable in this Python, in order of preference."""
-    found = []
-    for name, module in (("xtb-python", "xtb.interface"), ("tblite", "tblite.interface")):
-        try:
-            __import__(module)
-        except ImportError:
-            continue
-        found.append(name)
-    return found
+    return [name for name in BACKENDS if is_available(name)]
 
 
 def check_electrons(numbers, charge, unpaired_electrons, method="GFN-xTB", max_atomic_number=MAX_ATOMIC_NUMBER):
@@ -133,16 +141,15 @@ def resolve_backend(backend="auto", solvent=None, solvation=None):
     """The installed backend a run uses: "auto" becomes xtb-python if importable, else tblite
     (tblite for ALPB). Raises InputError when the choice cannot work here."""
     model = solvation_model(solvent, solvation)
-    found = available_backends()
     if backend == "auto":
-        candidates = [b for b in (["tblite"] if model == "alpb" else found) if b in found]
-        if not candidates:
+        chosen = next((b for b in (["tblite"] if model == "alpb" else BACKENDS) if is_available(b)), None)
+        if chosen is None:
             needed = "tblite (for ALPB solvation)" if model == "alpb" else "tblite (or xtb)"
             raise InputError(f"no suitable GFN-xTB backend is installed; pip install {needed}")
-        return candidates[0]
+        return chosen
     if backend not in BACKENDS:
         raise InputError(f"unknown engine {backend!r}; choose auto, {' or '.join(BACKENDS)}")
-    if backend not in found:
+    if not is_available(backend):
         raise InputError(f"engine {backend} is not installed in this Python; choose another with --engine")
     if backend == "xtb-python" and model == "alpb":
         raise InputError("xtb-python offers only GBSA solvation: use --solvation-model gbsa or --engine tblite")
