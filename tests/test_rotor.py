@@ -23,7 +23,8 @@ from torsionscan.records import from_plain, to_plain
 from torsionscan.rotor import (
     ConformerFreeEnergies, RotorPopulations, WellFundamental, conformer_free_energies, eyring_rate,
     half_life_s, interval_weights, reduced_moment_of_inertia, region_weights, rotational_constant_kcal_mol,
-    rotor_populations, torsional_levels, tunnelling_splitting, well_fundamentals, wigner_transmission,
+    rotor_populations, s_cis_over_temperatures, torsional_levels, tunnelling_splitting, well_fundamentals,
+    wigner_transmission,
 )
 from torsionscan.thermo import region_populations
 
@@ -346,6 +347,16 @@ def test_quantum_populations_tend_to_the_classical_ones_as_temperature_grows():
         differences.append(abs(quantum - classical))
     assert differences[0] > differences[1] > differences[2]
     assert differences[2] < 1e-5
+
+
+def test_the_temperature_curve_from_one_set_of_levels_equals_the_rotor_at_each_temperature():
+    # the populations figure's curve: levels solved once for the hottest point serve every colder one
+    temperatures = [150.0, 298.15, 450.0, 1200.0]
+    for inertia in (12.0, 45.0):
+        curve = s_cis_over_temperatures(BUTADIENE_LIKE, inertia, temperatures)
+        for t, fraction in zip(temperatures, curve):
+            assert fraction == pytest.approx(rotor_populations(BUTADIENE_LIKE, inertia, t).s_cis, rel=1e-10, abs=1e-14)
+    assert s_cis_over_temperatures(BUTADIENE_LIKE, 12.0, []) == []
 
 
 def test_free_energy_tends_to_the_classical_one_with_the_landau_lifshitz_correction():

@@ -391,6 +391,23 @@ def rotor_populations(series, inertia_amu_bohr2, temperature_k, scis_window_deg=
     )
 
 
+def s_cis_over_temperatures(series, inertia_amu_bohr2, temperatures_k):
+    """The rotor's s-cis fraction (rotor_populations(...).s_cis) at each temperature (K), from one
+    set of levels: those within 40 RT of the ground level at the highest temperature, so every
+    lower temperature has all it needs; one eigenproblem instead of one per temperature."""
+    temperatures = [_check_temperature(t) for t in temperatures_k]
+    if not temperatures:
+        return []
+    energies, vectors = torsional_levels(series, inertia_amu_bohr2,
+                                         window_kcal_mol=BOLTZMANN_WINDOW_RT * rt_kcal_mol(max(temperatures)))
+    weights = region_weights(vectors)
+    fractions = []
+    for t in temperatures:
+        boltzmann = np.exp(-(energies - energies[0]) / rt_kcal_mol(t))
+        fractions.append(float(boltzmann @ weights) / float(boltzmann.sum()))
+    return fractions
+
+
 @dataclass(frozen=True)
 class ConformerFreeEnergies:
     """Free energies (kcal/mol, on the profile's scale) of the s-cis and s-trans regions at temperature_k.

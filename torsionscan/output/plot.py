@@ -13,7 +13,7 @@ matplotlib.use("Agg")
 import matplotlib.pyplot as plt  # noqa: E402
 import numpy as np  # noqa: E402
 
-from ..rotor import rotor_populations  # noqa: E402
+from ..rotor import s_cis_over_temperatures  # noqa: E402
 from ..thermo import SCIS_LIMIT_DEG, region_populations  # noqa: E402
 from .report import SYMMETRIC_ROTOR_REASON, leading_answer, symmetric_rotor_shape  # noqa: E402
 
@@ -248,13 +248,13 @@ def _conjugation_panel(ax, bond):
 
 def rotor_curve(bond, temperatures_k):
     """(temperatures, s-cis fractions) of the torsion as a quantum hindered rotor on the fit
-    (rotor.rotor_populations with ProfileAnalysis.rotor_inertia_amu_bohr2), or None when the
+    (rotor.s_cis_over_temperatures with ProfileAnalysis.rotor_inertia_amu_bohr2), or None when the
     moment of inertia is not known."""
     inertia = bond.profile.rotor_inertia_amu_bohr2
     if bond.profile.fit is None or inertia is None:
         return None
     series = bond.profile.fit.series
-    return list(temperatures_k), [rotor_populations(series, inertia, t).s_cis for t in temperatures_k]
+    return list(temperatures_k), s_cis_over_temperatures(series, inertia, temperatures_k)
 
 
 def populations_figure(result, bond):
