@@ -203,7 +203,10 @@ def test_a_compound_that_kills_its_worker_fails_after_two_attempts_and_the_rest_
 @pytest.mark.xtb
 def test_a_worker_killed_from_outside_is_replaced_and_its_compound_retried(tmp_path):
     out = tmp_path / "run"
-    process = _start(_listing(tmp_path, SMALL[:3]), out, "--workers", "2", *COARSE)
+    # after the small first one, two compounds that take seconds even on this coarse grid, so the
+    # worker picked is still busy with one when it is killed
+    compounds = SMALL[:1] + [("phenyl-diene", "C=C/C=C/c1ccccc1"), ("stilbene", "c1ccccc1/C=C/c1ccccc1")]
+    process = _start(_listing(tmp_path, compounds), out, "--workers", "2", *COARSE)
     # once a compound is stored both workers hold the next ones (a job is handed out before storing)
     _wait_for(lambda: _done(out), process)
     os.kill(_busy_worker(process.pid), signal.SIGKILL)  # as the kernel's out-of-memory killer would

@@ -98,10 +98,15 @@ def test_ctrl_c_during_a_two_core_scan_exits_130_within_a_gradient_or_so(tmp_pat
     import subprocess
     import sys
 
+    # 1,4-diphenylbutadiene: three bonds, about 15 s on two cores, so the run is surely still going
     process = subprocess.Popen(
-        [sys.executable, "-m", "torsionscan.cli", "scan", "C=CC=Cc1ccccc1", "--cores", "2", "--out", str(tmp_path / "r")],
+        [sys.executable, "-m", "torsionscan.cli", "scan", "c1ccccc1/C=C/C=C/c1ccccc1", "--cores", "2",
+         "--out", str(tmp_path / "r")],
         stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, start_new_session=True)
-    time.sleep(6.0)  # imports, start structures, then the sweep chains side by side
+    deadline = time.monotonic() + 60
+    while len(os.listdir(f"/proc/{process.pid}/task")) < 3 and time.monotonic() < deadline:
+        time.sleep(0.05)  # until the two worker threads exist: the parallel pieces have begun
+    time.sleep(1.0)
     assert process.poll() is None, process.communicate()
     interrupted = time.monotonic()
     os.killpg(process.pid, signal.SIGINT)
