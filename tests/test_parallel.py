@@ -102,7 +102,9 @@ def test_ctrl_c_during_a_two_core_scan_exits_130_within_a_gradient_or_so(tmp_pat
     process = subprocess.Popen(
         [sys.executable, "-m", "torsionscan.cli", "scan", "c1ccccc1/C=C/C=C/c1ccccc1", "--cores", "2",
          "--out", str(tmp_path / "r")],
-        stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, start_new_session=True)
+        stdout=subprocess.PIPE, stderr=subprocess.PIPE, text=True, start_new_session=True,
+        # as from a terminal: a test run started in the background inherits Ctrl-C ignored
+        preexec_fn=lambda: signal.signal(signal.SIGINT, signal.SIG_DFL))
     deadline = time.monotonic() + 60
     while len(os.listdir(f"/proc/{process.pid}/task")) < 3 and time.monotonic() < deadline:
         time.sleep(0.05)  # until the two worker threads exist: the parallel pieces have begun
