@@ -67,3 +67,36 @@ def test_a_structure_without_symmetry_uses_every_displacement(butadiene_model):
     hessian, used_coords, used = symmetric_hessian(_gradients_at(engine), molecule.numbers, masses, coords, FD_STEP_BOHR)
     assert used == 60 and np.array_equal(used_coords, coords)
     assert np.abs(hessian - finite_difference_hessian(_gradient(engine), coords)).max() < 1e-9
+
+
+def test_a_structure_met_again_turned_or_mirrored_reuses_its_hessian_turned_with_it(butadiene_model):
+    # the lowest minimum reached from two bonds' scans is one structure in two frames
+    from torsionscan.freeenergy import Hessians
+    from torsionscan.geometry import rotation_matrix
+
+    molecule, engine, profile, masses = butadiene_model
+    gauche = next(m for m in profile.minima if 0 < m.angle_deg < 90)  # no symmetry beyond C2
+    calls = []
+
+    def counted(reference, structures):
+        calls.append(len(structures))
+        return _gradients_at(engine)(reference, structures)
+
+    hessians = Hessians(counted, masses)
+    first, _ = hessians(gauche.coords_bohr)
+    spent = sum(calls)
+    turn = rotation_matrix(np.array([0.3, -1.0, 0.5]), 2.1)
+    for mirror in (1.0, -1.0):  # a rotation, then a rotation with a reflection
+        matrix = turn * np.array([mirror, 1.0, 1.0])
+        moved = (gauche.coords_bohr - gauche.coords_bohr.mean(axis=0)) @ matrix + [4.0, -2.0, 7.0]
+        again, used = hessians(moved)
+        assert sum(calls) == spent  # no new gradient
+        assert np.abs(used - moved).max() < 0.02  # the structure it belongs to, in the new frame
+        direct = finite_difference_hessian(_gradient(engine), moved)
+        assert np.abs(again - direct).max() < 1e-5 * np.abs(direct).max()
+        frequencies = lambda h, c: harmonic_frequencies(h, masses, c)[0]  # noqa: E731
+        assert np.allclose(frequencies(again, used), frequencies(first, gauche.coords_bohr), atol=1e-6)
+    other = gauche.coords_bohr.copy()
+    other[0, 0] += 0.5  # one atom 0.5 Bohr away: another structure, a Hessian of its own
+    hessians(other)
+    assert sum(calls) > spent

@@ -24,7 +24,7 @@ from .bonding import graph_bonds
 from .coordinate import ScanCoordinate, mirror, mirror_hessian
 from .engines import CHARGE, CONJUGATION, SOLVENT, SPIN, make_engine
 from .errors import CalculationError, InputError
-from .freeenergy import add_free_energies, rotor_and_rates
+from .freeenergy import Hessians, add_free_energies, rotor_and_rates
 from .molecule import (
     find_conjugated_bonds, is_diene_bond, load_molecule, select_bond, side_atoms, starting_structures,
 )
@@ -264,9 +264,10 @@ class BondScanner:
                                 result.energy, how, result.converged, coords)
 
 
-def scan_bond(molecule, bond, workers, start, settings, conjugation=False):
+def scan_bond(molecule, bond, workers, start, settings, conjugation, hessians):
     """Relaxed scan of one dihedral from the start minimum `start` = (coords, energy, hessian);
-    workers: parallel.ParallelRelaxations; conjugation: its engines offer engines.CONJUGATION."""
+    workers: parallel.ParallelRelaxations; conjugation: its engines offer engines.CONJUGATION;
+    hessians: the molecule's freeenergy.Hessians, shared between its bonds."""
     began = time.perf_counter()
     evaluations_before = workers.evaluations
     scanner = BondScanner(molecule, bond, settings, workers.relax_jobs, conjugation)
@@ -280,14 +281,13 @@ def scan_bond(molecule, bond, workers, start, settings, conjugation=False):
         wall_time_s=time.perf_counter() - began,
     )
     if settings.frequencies:
-        masses = [atom.GetMass() for atom in molecule.mol.GetAtoms()]
         planar_start = None
         if is_diene_bond(molecule.mol, bond.atoms):
             planar_start = scanner.nearest(circle, 0.0)
         scanned, started = workers.evaluations, time.perf_counter()
         try:
             bond_scan = replace(bond_scan, profile=add_free_energies(
-                bond_scan.profile, bond.atoms, bond_scan.symmetric, workers, masses, settings,
+                bond_scan.profile, bond.atoms, bond_scan.symmetric, workers, hessians, settings,
                 planar_start and (planar_start[0].coords_bohr, planar_start[1]), scanner.coordinate.moving[0]))
         except (CalculationError, ValueError, np.linalg.LinAlgError) as error:
             log.warning("dihedral %s: frequencies failed (%s); free energies left out", bond.label, error)
@@ -343,10 +343,12 @@ def scan(source, *, bond=None, name=None, charge=None, unpaired_electrons=0, rec
     conjugation = CONJUGATION in engine.capabilities
     scans, failed = [], []
     with ParallelRelaxations(factory, molecule.numbers, cores, deadline, graph_bonds(molecule.mol)) as workers:
+        hessians = Hessians(workers.gradients_from_reference, [a.GetMass() for a in molecule.mol.GetAtoms()])
         coords, energy, hessian, start_evaluations = relax_start(molecule, workers, settings)
         for b in bonds:
             try:
-                scans.append(scan_bond(molecule, b, workers, (coords, energy, hessian), settings, conjugation))
+                scans.append(scan_bond(molecule, b, workers, (coords, energy, hessian), settings, conjugation,
+                                       hessians))
             except CalculationError as error:
                 log.warning("dihedral %s failed: %s", b.label, error)
                 failed.append((b.label, str(error)))

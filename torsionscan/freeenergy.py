@@ -67,9 +67,10 @@ def finite_difference_hessian(gradient_of, coords_bohr, step_bohr=FD_STEP_BOHR, 
 
 class Hessians:
     """Finite-difference Hessians through an engine's gradient, one per distinct structure: a
-    structure within SAME_STRUCTURE_BOHR of one already done (the planar s-cis structure and a
-    stationary point at 0 deg) reuses its Hessian; equivalent displacements of a symmetric
-    structure are skipped (symmetry.symmetric_hessian)."""
+    structure that lies within SAME_STRUCTURE_BOHR of one already done once turned (or mirrored)
+    onto it reuses its Hessian, turned with it (the planar s-cis structure and a stationary point
+    at 0 deg; the lowest minimum reached from the scans of two bonds, each in its own frame);
+    equivalent displacements of a symmetric structure are skipped (symmetry.symmetric_hessian)."""
 
     def __init__(self, gradients_at, masses_amu):
         """gradients_at(reference, structures): gradients (Hartree/Bohr) at displaced structures (Bohr)."""
@@ -78,9 +79,12 @@ class Hessians:
 
     def __call__(self, coords_bohr):
         """(Hessian (3N, 3N) Hartree/Bohr^2, the structure it belongs to (N, 3) Bohr)."""
+        coords_bohr = np.asarray(coords_bohr, dtype=float)
         for given, used, hessian in self.done:
-            if np.abs(given - coords_bohr).max() < SAME_STRUCTURE_BOHR:
-                return hessian, used
+            rotation, distance = geometry.superposition(given, coords_bohr)
+            if distance < SAME_STRUCTURE_BOHR:
+                turn = np.kron(np.eye(len(coords_bohr)), rotation.T)  # each atom's displacement turned
+                return turn @ hessian @ turn.T, (used - given.mean(axis=0)) @ rotation + coords_bohr.mean(axis=0)
         # atoms are matched by mass: every atom of one element has the same (average) mass here
         hessian, used, _ = symmetric_hessian(self.gradients_at, np.round(self.masses, 4), self.masses, coords_bohr,
                                              FD_STEP_BOHR)
@@ -160,12 +164,14 @@ def readiness(minima, planar, temperatures_k):
     return tuple(records)
 
 
-def add_free_energies(profile, dihedral_atoms, symmetric, workers, masses_amu, settings, planar_scis_start=None,
+def add_free_energies(profile, dihedral_atoms, symmetric, workers, hessians, settings, planar_scis_start=None,
                       moving_atoms=None):
     """The ProfileAnalysis with vibrations at its minima and maxima, RRHO populations and, when
     planar_scis_start (coords, hessian) is given (dienes), the planar s-cis record and readiness.
-    workers: a parallel.ParallelRelaxations (its displaced gradients and relaxations)."""
-    hessians = Hessians(workers.gradients_from_reference, masses_amu)
+    workers: a parallel.ParallelRelaxations (for the planar s-cis relaxation); hessians: the
+    molecule's Hessians (Hessians(workers.gradients_from_reference, masses)), shared by its bonds:
+    the lowest minimum is often one structure for every bond."""
+    masses_amu = hessians.masses
     atoms, temperatures = dihedral_atoms, settings.temperatures_k
     minima = _with_vibrations(profile.minima, _analyse_all(profile.minima, hessians, masses_amu, atoms,
                                                            temperatures, symmetric, moving_atoms))

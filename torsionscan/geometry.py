@@ -85,6 +85,17 @@ def rotate_about_bond(coords, j, k, moving, angle):
     return new, rotation
 
 
+def superposition(moved, fixed):
+    """(R, largest atom distance in Bohr) of the orthogonal 3x3 R (a rotation, or a rotation with a
+    reflection) that best lays `moved` onto `fixed`, atom for atom: fixed ~ (moved - its centre) @ R
+    + fixed's centre (Kabsch; both (N, 3) Bohr)."""
+    moved, fixed = np.asarray(moved, dtype=float), np.asarray(fixed, dtype=float)
+    p, q = moved - moved.mean(axis=0), fixed - fixed.mean(axis=0)
+    u, _, vt = np.linalg.svd(p.T @ q)
+    rotation = u @ vt
+    return rotation, float(np.linalg.norm(p @ rotation - q, axis=1).max())
+
+
 def rigid_body_directions(coords):
     """Orthonormal rows spanning the infinitesimal translations and rotations, shape (<=6, 3N)."""
     n = len(coords)
