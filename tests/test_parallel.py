@@ -24,6 +24,16 @@ class CountingEngine:
         time.sleep(self.seconds)
         return float(np.sum(coords_bohr ** 2)), 2.0 * np.asarray(coords_bohr)
 
+    def gradients_from_reference(self, reference_bohr, structures_bohr, before_each=None):
+        """As the GFN-xTB engines: one reference SCF, then a check before each structure's."""
+        self.energy_and_gradient(reference_bohr)
+        gradients = []
+        for coords in structures_bohr:
+            if before_each is not None:
+                before_each()
+            gradients.append(self.energy_and_gradient(coords)[1])
+        return gradients
+
 
 def _workers(threads, seconds=0.0):
     return ParallelRelaxations(lambda: CountingEngine(seconds), np.ones(3, dtype=int), threads)
@@ -38,7 +48,7 @@ def test_results_come_back_in_order_and_every_gradient_is_counted(threads):
         assert workers.evaluations == 6
         gradients = workers.gradients_from_reference(np.zeros((3, 3)), [np.full((3, 3), i) for i in range(20)])
         assert [g[0, 0] for g in gradients] == [2.0 * i for i in range(20)]
-        assert workers.evaluations == 26
+        assert workers.evaluations == 26 + threads  # 20 structures and one reference per share (of 10 or 20)
 
 
 def test_two_threads_run_at_once():
@@ -69,6 +79,61 @@ def test_a_failing_piece_stops_the_others_at_their_next_gradient():
             workers.map(piece, ["long", "fails"])
         assert time.perf_counter() - began < 1.0
         # the stop was for that stage only: the next one runs
+        assert workers.map(lambda relaxer, _: relaxer.gradient(np.zeros((3, 3)))[0, 0], [0, 1]) == [0.0, 0.0]
+
+
+def test_gradients_of_stopped_and_failed_pieces_are_counted_and_the_first_failure_in_order_is_raised():
+    def piece(relaxer, which):
+        if which == "late":
+            relaxer.gradient(np.zeros((3, 3)))
+            time.sleep(0.3)
+            raise CalculationError("late failure")
+        if which == "early":
+            relaxer.gradient(np.zeros((3, 3)))
+            raise CalculationError("early failure")
+        return relaxer.gradient(np.zeros((3, 3)))
+
+    with _workers(2) as workers:
+        with pytest.raises(CalculationError, match="late failure"):  # first in item order, not in time
+            workers.map(piece, ["late", "early"])
+        assert workers.evaluations == 2
+
+
+def test_displaced_gradients_stop_between_structures_when_a_share_beside_them_fails():
+    class FailsAfterThree(CountingEngine):
+        def energy_and_gradient(self, coords_bohr):
+            if coords_bohr[0, 0] >= 3:
+                raise CalculationError("SCF failed at a displaced structure")
+            return super().energy_and_gradient(coords_bohr)
+
+    # two shares of 20: the first reaches a failing structure at its third, the second never would
+    structures = [np.full((3, 3), 2.0 * i if i < 20 else 0.5) for i in range(40)]
+    workers = ParallelRelaxations(lambda: FailsAfterThree(0.05), np.ones(3, dtype=int), 2)
+    with workers:
+        began = time.perf_counter()
+        with pytest.raises(CalculationError, match="displaced structure"):
+            workers.gradients_from_reference(np.zeros((3, 3)), structures)
+        assert time.perf_counter() - began < 0.6  # the second share (20 x 0.05 s) was stopped early
+        assert 0 < workers.evaluations < 15
+
+
+def test_ctrl_c_while_pieces_run_stops_them_and_the_next_stage_still_runs():
+    import os
+    import signal
+
+    def piece(relaxer, which):
+        if which == "interrupts":
+            time.sleep(0.2)
+            os.kill(os.getpid(), signal.SIGINT)  # a Ctrl-C, here even sent from a worker thread
+            return None
+        for _ in range(1000):
+            relaxer.gradient(np.zeros((3, 3)))
+
+    with _workers(2, seconds=0.05) as workers:
+        began = time.perf_counter()
+        with pytest.raises(KeyboardInterrupt):
+            workers.map(piece, ["runs", "interrupts"])
+        assert time.perf_counter() - began < 1.0
         assert workers.map(lambda relaxer, _: relaxer.gradient(np.zeros((3, 3)))[0, 0], [0, 1]) == [0.0, 0.0]
 
 

@@ -89,6 +89,6 @@ def test_a_time_limit_stops_a_real_scan_between_gradients():
     from torsionscan.errors import TimeLimitExceeded
 
     started = time.monotonic()
-    with pytest.raises(TimeLimitExceeded, match="time limit reached after"):
+    with pytest.raises(TimeLimitExceeded, match="time limit reached"):
         scan("C=CC=Cc1ccccc1", time_limit_s=0.3)
     assert time.monotonic() - started < 3.0  # one gradient of this molecule takes milliseconds

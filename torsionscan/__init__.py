@@ -9,8 +9,8 @@
 Import side effect: the OpenMP and BLAS thread variables (OMP_NUM_THREADS, OPENBLAS_NUM_THREADS,
 MKL_NUM_THREADS) that are not set already are set to 1, or to TORSIONSCAN_THREADS when that is set
 ("keep" leaves them alone): small-molecule GFN-xTB runs slower when threads compete for few cores,
-and parallel work is better spent on separate processes. This must happen before numpy or an
-engine library is loaded; set_threads changes the count later (torsionscan.threads).
+and parallel work goes to threads with an engine each or to processes instead. This must happen
+before numpy or an engine library is loaded; set_threads changes the count later (torsionscan.threads).
 """
 
 from .threads import limit_threads as _limit_threads

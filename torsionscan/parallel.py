@@ -14,9 +14,10 @@ from concurrent.futures import FIRST_EXCEPTION, ThreadPoolExecutor, wait
 import numpy as np
 
 from .errors import CalculationError
-from .relax import Relaxer
+from .relax import Relaxer, Stopped
 
 MIN_SHARE = 8  # fewest displaced structures worth a thread (each share pays one reference SCF)
+POLL_S = 0.1  # longest wait for the pieces before the main thread looks at a pending Ctrl-C again
 
 
 class ParallelRelaxations:
@@ -48,38 +49,48 @@ class ParallelRelaxations:
         Relaxer(None, self.numbers, self.deadline).check_deadline()
 
     def map(self, piece, items):
-        """[piece(relaxer, item) for each item], in order, each with a relaxer of its own; the
-        first exception a piece raises is raised here once the others have stopped."""
+        """[piece(relaxer, item) for each item], in order, each with a relaxer of its own. When
+        pieces fail, the others are stopped at their next gradient and the first failure in item
+        order is raised once all have ended; the gradients of every piece are counted either way."""
+        counts = []
+
         def run(item):
             relaxer = self.relaxer()
             before = relaxer.engine.evaluations
-            return piece(relaxer, item), relaxer.engine.evaluations - before
+            try:
+                return piece(relaxer, item)
+            finally:
+                counts.append(relaxer.engine.evaluations - before)  # right away: the engine may be shared
 
         items = list(items)
-        if self._executor is None or len(items) < 2:
-            done = []
-            for item in items:
-                done.append(run(item))
-                self.evaluations += done[-1][1]
-            return [result for result, _ in done]
-        futures = [self._executor.submit(run, item) for item in items]
         try:
-            wait(futures, return_when=FIRST_EXCEPTION)
-            failed = next((f for f in futures if f.done() and f.exception() is not None), None)
-            if failed is not None:
-                raise failed.exception()
-            done = [future.result() for future in futures]
-        except BaseException:
-            self._stop.set()  # the other pieces stop at their next gradient (relax.Stopped)
-            for future in futures:
-                future.cancel()
-            for future in futures:
-                if not future.cancelled():
-                    future.exception()  # wait for it
+            if self._executor is None or len(items) < 2:
+                return [run(item) for item in items]
+            futures = [self._executor.submit(run, item) for item in items]
+            try:
+                # in short waits: a Ctrl-C that the kernel hands to a worker thread is still acted on here
+                while wait(futures, timeout=POLL_S, return_when=FIRST_EXCEPTION).not_done:
+                    if any(f.done() and f.exception() is not None for f in futures):
+                        break
+            except BaseException:  # Ctrl-C while waiting: stop the pieces, wait for them, pass it on
+                self._halt(futures)
+                raise
+            failures = [f.exception() for f in futures if f.done() and f.exception() is not None]
+            if failures:
+                self._halt(futures)
+                failures = [f.exception() for f in futures if not f.cancelled() and f.exception() is not None]
+                raise next((e for e in failures if not isinstance(e, Stopped)), failures[0])
+            return [future.result() for future in futures]
+        finally:
             self._stop.clear()
-            raise
-        self.evaluations += sum(count for _, count in done)
-        return [result for result, _ in done]
+            self.evaluations += sum(counts)
+
+    def _halt(self, futures):
+        """Stop the running pieces at their next gradient, drop those not begun, wait for the rest."""
+        self._stop.set()
+        for future in futures:
+            future.cancel()
+        wait(futures)
 
     def relax_jobs(self, jobs):
         """Each relax.RelaxJob relaxed on its own engine, in order: the OptimizationResult or the

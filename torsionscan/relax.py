@@ -47,8 +47,7 @@ class Relaxer:
         if self.stop is not None and self.stop.is_set():
             raise Stopped("stopped before this gradient")
         if self.deadline is not None and time.monotonic() > self.deadline:
-            done = f" after {self.engine.evaluations} gradient evaluations" if self.engine is not None else ""
-            raise TimeLimitExceeded(f"time limit reached{done}")
+            raise TimeLimitExceeded("time limit reached (checked before each gradient)")
 
     def _objective(self, x):
         self.check_deadline()

@@ -1,7 +1,7 @@
 """Thread settings of the numerical libraries (OpenMP, OpenBLAS, MKL).
 
 Small-molecule GFN-xTB runs slower when OpenMP and BLAS threads compete for few cores, and
-parallel work is better spent on separate processes, so importing torsionscan sets each of these
+parallel work goes to Python threads with an engine each (parallel.py) or to processes, so importing torsionscan sets each of these
 variables the user has not set to TORSIONSCAN_THREADS (1 when that is not set either;
 TORSIONSCAN_THREADS=keep leaves them all alone). It happens before numpy or an engine library is
 loaded, because those read the variables when they load. set_threads changes them later: for the
