@@ -67,19 +67,20 @@ class ParallelRelaxations:
             if self._executor is None or len(items) < 2:
                 return [run(item) for item in items]
             futures = [self._executor.submit(run, item) for item in items]
+
+            def failures():
+                return [f.exception() for f in futures if f.done() and not f.cancelled() and f.exception() is not None]
+
             try:
                 # in short waits: a Ctrl-C that the kernel hands to a worker thread is still acted on here
-                while wait(futures, timeout=POLL_S, return_when=FIRST_EXCEPTION).not_done:
-                    if any(f.done() and f.exception() is not None for f in futures):
-                        break
+                while wait(futures, timeout=POLL_S, return_when=FIRST_EXCEPTION).not_done and not failures():
+                    pass
             except BaseException:  # Ctrl-C while waiting: stop the pieces, wait for them, pass it on
                 self._halt(futures)
                 raise
-            failures = [f.exception() for f in futures if f.done() and f.exception() is not None]
-            if failures:
+            if failures():
                 self._halt(futures)
-                failures = [f.exception() for f in futures if not f.cancelled() and f.exception() is not None]
-                raise next((e for e in failures if not isinstance(e, Stopped)), failures[0])
+                raise next((e for e in failures() if not isinstance(e, Stopped)), failures()[0])
             return [future.result() for future in futures]
         finally:
             self._stop.clear()

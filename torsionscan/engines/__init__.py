@@ -77,15 +77,12 @@ def _tblite():
 _REGISTRY = {"xtb-python": _xtb_python, "tblite": _tblite}
 
 
-_MODULES = {"xtb-python": "xtb.interface", "tblite": "tblite.interface"}
-
-
 @functools.cache
 def is_available(backend):
-    """Whether the backend's library imports in this Python (asked once: importing tblite alone
-    takes about 0.2 s, a third of a small molecule's whole scan)."""
+    """Whether the backend's engine module (and so its library) imports in this Python, asked
+    once: importing tblite alone takes about 0.2 s, a third of a small molecule's whole scan."""
     try:
-        __import__(_MODULES[backend])
+        _REGISTRY[backend]()
     except ImportError:
         return False
     return True
