@@ -9,7 +9,7 @@ from torsionscan.engines.model import ModelEngine
 from torsionscan.freeenergy import FD_STEP_BOHR, finite_difference_hessian
 from torsionscan.molecule import find_conjugated_bonds, load_molecule
 from torsionscan.profile import FourierSeries
-from torsionscan.rrho import harmonic_frequencies
+from torsionscan.rrho import harmonic_frequencies, internal_basis
 from torsionscan.symmetry import find_group, symmetric_hessian
 
 
@@ -58,15 +58,48 @@ def test_the_symmetric_hessian_equals_the_full_one_with_fewer_gradients(butadien
     assert all(used == 30 for angle, used in counts.items() if angle not in (0, 180))
 
 
-def test_a_structure_without_symmetry_uses_every_displacement(butadiene_model):
+def _vibrational_block(hessian, masses, coords):
+    """The mass-weighted Hessian in the space of the vibrations (rrho.internal_basis)."""
+    basis = internal_basis(masses, coords)
+    scale = np.repeat(1.0 / np.sqrt(masses), 3)
+    return basis.T @ (hessian * np.outer(scale, scale)) @ basis
+
+
+def test_a_structure_without_symmetry_is_displaced_along_its_internal_directions_only(butadiene_model):
     molecule, engine, profile, masses = butadiene_model
     rng = np.random.default_rng(7)
     coords = profile.minima[0].coords_bohr + rng.normal(scale=0.1, size=profile.minima[0].coords_bohr.shape)
     _, _, operations, _ = find_group(molecule.numbers, masses, coords)
     assert len(operations) == 1
     hessian, used_coords, used = symmetric_hessian(_gradients_at(engine), molecule.numbers, masses, coords, FD_STEP_BOHR)
-    assert used == 60 and np.array_equal(used_coords, coords)
-    assert np.abs(hessian - finite_difference_hessian(_gradient(engine), coords)).max() < 1e-9
+    assert used == 2 * (3 * 10 - 6) and np.array_equal(used_coords, coords)  # 48 instead of 6N = 60
+    full = finite_difference_hessian(_gradient(engine), coords)
+    ours, theirs = _vibrational_block(hessian, masses, coords), _vibrational_block(full, masses, coords)
+    # equal up to the central-difference truncation error, O(h^2), along different directions
+    assert np.abs(ours - theirs).max() < 1e-6 * np.abs(theirs).max()
+    # the rigid-body directions carry no curvature (the frequencies leave them out in any case)
+    shift = np.tile([1.0, 0.0, 0.0], 10)
+    assert np.abs(hessian @ shift).max() < 1e-12
+
+
+@pytest.mark.xtb
+def test_internal_directions_give_the_full_hessians_frequencies_with_gfn2_xtb():
+    # a twisted (C1) ortho-methylstyrene minimum: every frequency within 0.5 cm-1 of the Cartesian
+    # central-difference Hessian's (both are 0.005 Bohr differences of the same gradients)
+    from torsionscan.engines import make_engine
+
+    result = torsionscan.scan("C=Cc1ccccc1C", cores=2, settings=torsionscan.ScanSettings(frequencies=False))
+    molecule = load_molecule("C=Cc1ccccc1C")
+    masses = np.array([a.GetMass() for a in molecule.mol.GetAtoms()])
+    engine = make_engine(molecule.numbers)
+    twisted = next(m for m in result.bonds[0].profile.minima if 20 < abs(m.angle_deg) < 160)
+    coords = np.asarray(twisted.coords_bohr)
+    gradients_at = engine.gradients_from_reference
+    hessian, _, used = symmetric_hessian(gradients_at, molecule.numbers, masses, coords, FD_STEP_BOHR)
+    full = finite_difference_hessian(lambda c: gradients_at(coords, [c])[0], coords)
+    assert used == 2 * (3 * 19 - 6)
+    ours, theirs = harmonic_frequencies(hessian, masses, coords)[0], harmonic_frequencies(full, masses, coords)[0]
+    assert theirs.min() > 0 and np.abs(ours - theirs).max() < 0.5
 
 
 def test_a_structure_met_again_turned_or_mirrored_reuses_its_hessian_turned_with_it(butadiene_model):

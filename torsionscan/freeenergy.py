@@ -2,7 +2,7 @@
 points, RRHO/quasi-RRHO thermochemistry, conformer populations from free energies, and for
 dienes the free-energy cost of holding the bond planar s-cis.
 
-Hessians are central finite differences of the engine's analytic gradients (6N gradients,
+Hessians are central finite differences of the engine's analytic gradients (at most 6N-12 gradients,
 step 0.005 Bohr). Thermochemistry follows the ideal-gas rigid-rotor/harmonic-oscillator model
 with Grimme's quasi-RRHO entropy for modes below 100 cm^-1 (S. Grimme, Chem. Eur. J. 2012, 18,
 9955), rotational symmetry number 1 for every conformer (mirror-image conformers are listed

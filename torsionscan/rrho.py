@@ -70,6 +70,13 @@ def _orthonormal_columns(columns):
     return u[:, :rank], u[:, rank:]
 
 
+def internal_basis(masses_amu, coords_bohr):
+    """(3N, 3N-6) orthonormal columns spanning the mass-weighted displacements that neither
+    translate nor rotate the structure (3N-5 for a linear one): the space the frequencies live in."""
+    masses, coords = _as_geometry(masses_amu, coords_bohr)
+    return _orthonormal_columns(_rigid_body_mass_weighted(masses, coords))[1]
+
+
 def harmonic_frequencies(hessian_hartree_bohr2, masses_amu, coords_bohr, extra_directions=None):
     """Harmonic frequencies (cm^-1) and normal modes from a Cartesian Hessian.
 

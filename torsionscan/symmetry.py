@@ -1,4 +1,5 @@
-"""Point-group symmetry of a structure, used to skip equivalent finite-difference displacements.
+"""Symmetries of a structure used to skip finite-difference displacements: its point group, and
+the energy's invariance under translation and rotation.
 
 The operations looked for are the seven that are diagonal in the principal-axis frame of the
 structure (reflections through the three principal planes, two-fold rotations about the three
@@ -9,12 +10,16 @@ TOLERANCE_BOHR; the structure is then made exactly symmetric by averaging over t
 
 With the group known, a gradient at a displaced structure gives, by symmetry, the gradient at
 every displacement equivalent to it, so a central-difference Hessian needs one gradient per
-class of equivalent displacements instead of 6N. Bohr and Hartree throughout.
+class of equivalent displacements instead of 6N. A structure with no such operation is displaced
+along the 3N-6 internal directions only (internal_hessian): the rigid-body curvature is removed from
+the frequencies anyway, so 12 of the 6N gradients add nothing. Bohr and Hartree throughout.
 """
 
 import itertools
 
 import numpy as np
+
+from .rrho import internal_basis
 
 TOLERANCE_BOHR = 0.02  # largest atom mismatch of an operation on an optimised structure
 _CANDIDATES = [np.array(signs, dtype=float) for signs in itertools.product((1.0, -1.0), repeat=3)]
@@ -94,14 +99,15 @@ def displacement_classes(operations, atom_count):
 
 def symmetric_hessian(gradients_at, numbers, masses, coords_bohr, step_bohr):
     """(Hessian (3N, 3N) in the input frame, symmetrised coords (N, 3) in the input frame, gradients
-    used) by central differences over one displacement per class of equivalent displacements.
+    used) by central differences over one displacement per class of equivalent displacements;
+    internal_hessian for a structure without symmetry.
 
     gradients_at(reference, structures) -> gradients at the structures (all (N, 3), input frame);
     reference is the undisplaced structure.
     """
     centre, axes, operations, frame = find_group(numbers, masses, coords_bohr)
-    if len(operations) == 1:  # nothing to gain from the frame: displace the structure as given
-        centre, axes, frame = np.zeros(3), np.eye(3), np.array(coords_bohr, dtype=float)
+    if len(operations) == 1:
+        return internal_hessian(gradients_at, masses, coords_bohr, step_bohr)
     count = len(frame)
     classes = displacement_classes(operations, count)
     displaced = []
@@ -123,3 +129,24 @@ def symmetric_hessian(gradients_at, numbers, masses, coords_bohr, step_bohr):
     frame_hessian = 0.5 * (frame_hessian + frame_hessian.T)
     block = np.kron(np.eye(count), axes)  # frame vector -> input-frame vector
     return block @ frame_hessian @ block.T, reference, len(classes)
+
+
+def internal_hessian(gradients_at, masses, coords_bohr, step_bohr):
+    """(Hessian (3N, 3N), coords (N, 3), gradients used) by central differences along the 3N-6
+    internal directions (rrho.internal_basis, each turned into a Cartesian unit vector and
+    displaced by step_bohr): exact in the space of the vibrations and zero along translations and
+    rotations, which the frequencies leave out. gradients_at as in symmetric_hessian."""
+    coords = np.array(coords_bohr, dtype=float)
+    masses = np.asarray(masses, dtype=float)
+    sqrt_m = np.repeat(np.sqrt(masses), 3)
+    basis = internal_basis(masses, coords)  # mass-weighted, orthonormal
+    directions = basis / sqrt_m[:, None]  # Cartesian
+    lengths = np.linalg.norm(directions, axis=0)
+    units = directions / lengths
+    displaced = [coords + sign * step_bohr * unit.reshape(-1, 3) for unit in units.T for sign in (1, -1)]
+    gradients = np.array(gradients_at(coords, displaced)).reshape(len(displaced), -1)
+    along = (gradients[0::2] - gradients[1::2]).T / (2 * step_bohr)  # H @ unit, one column per direction
+    internal = basis.T @ (along * lengths / sqrt_m[:, None])  # basis^T M^-1/2 H M^-1/2 basis
+    internal = 0.5 * (internal + internal.T)
+    weighted = basis @ internal @ basis.T
+    return sqrt_m[:, None] * weighted * sqrt_m[None, :], coords, len(displaced)
