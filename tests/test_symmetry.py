@@ -133,3 +133,37 @@ def test_a_structure_met_again_turned_or_mirrored_reuses_its_hessian_turned_with
     other[0, 0] += 0.5  # one atom 0.5 Bohr away: another structure, a Hessian of its own
     hessians(other)
     assert sum(calls) > spent
+
+
+@pytest.mark.xtb
+def test_a_phenyl_ring_flipped_onto_itself_reuses_the_hessian_with_its_atoms_exchanged():
+    # the planar minima at 0 and 180 deg of a phenyl-vinyl bond are one structure with the ortho
+    # (and meta) atoms exchanged: its Hessian, reordered, gives the frequencies computed afresh
+    from torsionscan.engines import make_engine
+    from torsionscan.freeenergy import Hessians
+    from torsionscan.molecule import atom_orders
+
+    result = torsionscan.scan("C=Cc1ccccc1", cores=2, settings=torsionscan.ScanSettings(frequencies=False))
+    molecule = load_molecule("C=Cc1ccccc1")
+    masses = np.array([a.GetMass() for a in molecule.mol.GetAtoms()])
+    engine = make_engine(molecule.numbers)
+    zero, flipped = sorted(result.bonds[0].profile.minima, key=lambda m: abs(m.angle_deg))
+    assert abs(zero.angle_deg) < 1 and abs(flipped.angle_deg) > 179
+    coords, flipped = np.asarray(zero.coords_bohr), np.asarray(flipped.coords_bohr)
+    calls = []
+
+    def counted(reference, structures):
+        calls.append(len(structures))
+        return engine.gradients_from_reference(reference, structures)
+
+    hessians = Hessians(counted, masses, atom_orders(molecule.mol))
+    hessians(coords)
+    spent = sum(calls)
+    again, used = hessians(flipped)
+    assert sum(calls) == spent  # no new gradient
+    assert np.abs(used - flipped).max() < 0.02
+    direct = finite_difference_hessian(lambda c: engine.gradients_from_reference(flipped, [c])[0], flipped)
+    ours, theirs = harmonic_frequencies(again, masses, used)[0], harmonic_frequencies(direct, masses, flipped)[0]
+    assert theirs.min() > 0 and np.abs(ours - theirs).max() < 0.5
+    Hessians(counted, masses)(flipped)  # without the exchanges of equivalent atoms: computed again
+    assert sum(calls) > spent

@@ -26,7 +26,7 @@ from .engines import CHARGE, CONJUGATION, SOLVENT, SPIN, make_engine
 from .errors import CalculationError, InputError
 from .freeenergy import Hessians, add_free_energies, rotor_and_rates
 from .molecule import (
-    find_conjugated_bonds, is_diene_bond, load_molecule, select_bond, side_atoms, starting_structures,
+    atom_orders, find_conjugated_bonds, is_diene_bond, load_molecule, select_bond, side_atoms, starting_structures,
 )
 from .parallel import ParallelRelaxations
 from .records import BondScan, Hysteresis, ScanPoint, ScanResult, StationaryRecord
@@ -343,7 +343,8 @@ def scan(source, *, bond=None, name=None, charge=None, unpaired_electrons=0, rec
     conjugation = CONJUGATION in engine.capabilities
     scans, failed = [], []
     with ParallelRelaxations(factory, molecule.numbers, cores, deadline, graph_bonds(molecule.mol)) as workers:
-        hessians = Hessians(workers.gradients_from_reference, [a.GetMass() for a in molecule.mol.GetAtoms()])
+        hessians = Hessians(workers.gradients_from_reference, [a.GetMass() for a in molecule.mol.GetAtoms()],
+                             atom_orders(molecule.mol))
         coords, energy, hessian, start_evaluations = relax_start(molecule, workers, settings)
         for b in bonds:
             try:

@@ -67,24 +67,32 @@ def finite_difference_hessian(gradient_of, coords_bohr, step_bohr=FD_STEP_BOHR, 
 
 class Hessians:
     """Finite-difference Hessians through an engine's gradient, one per distinct structure: a
-    structure that lies within SAME_STRUCTURE_BOHR of one already done once turned (or mirrored)
-    onto it reuses its Hessian, turned with it (the planar s-cis structure and a stationary point
-    at 0 deg; the lowest minimum reached from the scans of two bonds, each in its own frame);
-    equivalent displacements of a symmetric structure are skipped (symmetry.symmetric_hessian)."""
+    structure that lies within SAME_STRUCTURE_BOHR of one already done, once turned (or mirrored)
+    onto it and with equivalent atoms exchanged, reuses its Hessian, reordered and turned with it
+    (the planar s-cis structure and a stationary point at 0 deg; the lowest minimum reached from
+    the scans of two bonds, each in its own frame; the two planar minima of a phenyl ring's bond,
+    one the other flipped); equivalent displacements of a symmetric structure are skipped
+    (symmetry.symmetric_hessian)."""
 
-    def __init__(self, gradients_at, masses_amu):
-        """gradients_at(reference, structures): gradients (Hartree/Bohr) at displaced structures (Bohr)."""
+    def __init__(self, gradients_at, masses_amu, atom_orders=None):
+        """gradients_at(reference, structures): gradients (Hartree/Bohr) at displaced structures (Bohr);
+        atom_orders: molecule.atom_orders of the molecule (None: atoms are never exchanged)."""
         self.gradients_at, self.masses = gradients_at, np.asarray(masses_amu, dtype=float)
+        count = len(self.masses)
+        self.orders, self.parents = atom_orders or ([np.arange(count)], np.full(count, -1))
         self.done = []  # (coords given, coords used, hessian)
 
     def __call__(self, coords_bohr):
         """(Hessian (3N, 3N) Hartree/Bohr^2, the structure it belongs to (N, 3) Bohr)."""
         coords_bohr = np.asarray(coords_bohr, dtype=float)
         for given, used, hessian in self.done:
-            rotation, distance = geometry.superposition(given, coords_bohr)
+            order, rotation, distance = geometry.matched_superposition(given, coords_bohr, self.orders, self.parents)
             if distance < SAME_STRUCTURE_BOHR:
+                components = (3 * order[:, None] + np.arange(3)).ravel()
                 turn = np.kron(np.eye(len(coords_bohr)), rotation.T)  # each atom's displacement turned
-                return turn @ hessian @ turn.T, (used - given.mean(axis=0)) @ rotation + coords_bohr.mean(axis=0)
+                reordered = hessian[np.ix_(components, components)]
+                return (turn @ reordered @ turn.T,
+                        (used[order] - given.mean(axis=0)) @ rotation + coords_bohr.mean(axis=0))
         # atoms are matched by mass: every atom of one element has the same (average) mass here
         hessian, used, _ = symmetric_hessian(self.gradients_at, np.round(self.masses, 4), self.masses, coords_bohr,
                                              FD_STEP_BOHR)

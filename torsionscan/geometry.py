@@ -5,6 +5,8 @@ The dihedral follows the IUPAC sign convention (the same as RDKit): looking alon
 angle is positive when bond j-i must turn clockwise to eclipse bond k-l.
 """
 
+import itertools
+
 import numpy as np
 
 
@@ -94,6 +96,34 @@ def superposition(moved, fixed):
     u, _, vt = np.linalg.svd(p.T @ q)
     rotation = u @ vt
     return rotation, float(np.linalg.norm(p @ rotation - q, axis=1).max())
+
+
+def matched_superposition(moved, fixed, orders, parents):
+    """(order, R, largest atom distance in Bohr) of the best superposition of `moved` onto `fixed`
+    with equivalent atoms exchanged: fixed ~ (moved[order] - its centre) @ R + fixed's centre.
+
+    orders, parents: molecule.atom_orders. Each heavy-atom order is laid on by superposition; each
+    heavy atom's hydrogens then go to the nearest arrangement of its partner's hydrogens."""
+    moved, fixed = np.asarray(moved, dtype=float), np.asarray(fixed, dtype=float)
+    heavy = parents < 0
+    best = (None, None, np.inf)
+    for heavy_order in orders:
+        partners = heavy_order[heavy]
+        rotation, _ = superposition(fixed[heavy], moved[partners])  # moved ~ fixed turned
+        laid = (fixed - fixed[heavy].mean(axis=0)) @ rotation + moved[partners].mean(axis=0)
+        order = heavy_order.copy()
+        for atom in np.flatnonzero(heavy):
+            ours, theirs = np.flatnonzero(parents == atom), np.flatnonzero(parents == heavy_order[atom])
+            if len(ours) != len(theirs):
+                break
+            if len(ours):
+                order[ours] = min(itertools.permutations(theirs),
+                                  key=lambda p: float(np.sum((laid[ours] - moved[list(p)]) ** 2)))
+        else:
+            rotation, distance = superposition(moved[order], fixed)
+            if distance < best[2]:
+                best = (order, rotation, distance)
+    return best
 
 
 def rigid_body_directions(coords):

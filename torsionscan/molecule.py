@@ -554,6 +554,36 @@ def side_atoms(mol, j, k):
     raise InputError(f"bond {j + 1}-{k + 1} does not split the molecule")
 
 
+MAX_ATOM_ORDERS = 1000  # heavy-atom orders tried when recognising one structure as another
+
+
+def atom_orders(mol, limit=MAX_ATOM_ORDERS):
+    """(orders, parents) of an RDKit molecule with hydrogens: the orders of its heavy atoms that
+    map its graph onto itself (identity first; at most limit), each an (N,) array with -1 at the
+    hydrogens, and each atom's heavy neighbour for a hydrogen (-1 for a heavy atom). With them
+    geometry.matched_superposition finds one structure in another with equivalent atoms
+    exchanged: a phenyl ring flipped, a methyl group turned by a third of a turn."""
+    mol = getattr(mol, "mol", mol)
+    heavy = [atom.GetIdx() for atom in mol.GetAtoms() if atom.GetAtomicNum() > 1]
+    parents = np.full(mol.GetNumAtoms(), -1)
+    for atom in mol.GetAtoms():
+        neighbours = [n.GetIdx() for n in atom.GetNeighbors()]
+        if atom.GetAtomicNum() == 1 and len(neighbours) == 1 and neighbours[0] in heavy:
+            parents[atom.GetIdx()] = neighbours[0]
+    skeleton = Chem.RWMol(mol)
+    for index in sorted(np.flatnonzero(parents >= 0), reverse=True):
+        skeleton.RemoveAtom(int(index))  # the remaining atoms keep their order
+    kept = np.flatnonzero(parents < 0)
+    identity = tuple(range(len(kept)))
+    matches = skeleton.GetSubstructMatches(skeleton, uniquify=False, useChirality=False, maxMatches=limit)
+    orders = []
+    for match in sorted(set(matches) | {identity}, key=lambda m: m != identity):
+        order = np.full(mol.GetNumAtoms(), -1)
+        order[kept] = kept[list(match)]
+        orders.append(order)
+    return orders, parents
+
+
 def starting_structures(molecule, count=5, seed=61453):
     """Up to `count` seeded ETKDG conformers pre-optimised with MMFF94 (UFF if MMFF cannot type), Angstrom.
 
