@@ -93,3 +93,46 @@ def test_an_enone_gets_no_diene_readiness_and_frequencies_can_be_skipped():
     quick = torsionscan.scan("C=CC=O", settings=ScanSettings(step_deg=30.0, conformers=2, frequencies=False)).bonds[0]
     assert quick.profile.minima[0].frequencies_cm1 == () and quick.profile.rrho_populations == ()
     assert quick.frequency_gradient_evaluations == 0
+
+
+def test_a_top_inside_one_region_is_verified_without_a_full_hessian():
+    # ortho-methylstyrene: the planar tops at 0 and 180 deg lie between mirror-image minima of one
+    # region, so no free energy needs them; their nature is shown by the lowest-eigenvalue search
+    # (with the dihedral frozen), and a full Hessian there agrees: one imaginary mode, along the torsion
+    from torsionscan.freeenergy import stable_with_torsion_frozen
+    from torsionscan.geometry import dihedral_gradient
+
+    result = torsionscan.scan("C=Cc1ccccc1C", cores=2)
+    bond = result.bonds[0]
+    inside = [m for m in bond.profile.maxima if abs(m.angle_deg) < 1 or abs(m.angle_deg) > 179]
+    crossing = [m for m in bond.profile.maxima if 60 < abs(m.angle_deg) < 120]
+    assert len(inside) == 2 and crossing
+    assert all(m.imaginary_count == 1 and m.imaginary_along_torsion and not m.frequencies_cm1 for m in inside)
+    assert all(m.imaginary_count == 1 and m.frequencies_cm1 and m.gibbs_corrections_kcal_mol for m in crossing)
+    assert bond.profile.interconversion  # the rate needs the crossing tops' free energies only
+    molecule = load_molecule("C=Cc1ccccc1C")
+    masses = [a.GetMass() for a in molecule.mol.GetAtoms()]
+    engine = make_engine(molecule.numbers)
+    top = inside[0]
+    coords = np.asarray(top.coords_bohr)
+    hessian = finite_difference_hessian(lambda c: engine.gradients_from_reference(coords, [c])[0], coords)
+    free = harmonic_frequencies(hessian, masses, coords)[0]
+    frozen = harmonic_frequencies(hessian, masses, coords, [dihedral_gradient(coords, *bond.dihedral_atoms)])[0]
+    assert free[0] < 0 < free[1] and frozen[0] > 0
+    assert stable_with_torsion_frozen(engine.gradients_from_reference, molecule.numbers, masses, coords,
+                                      bond.dihedral_atoms)
+
+
+def test_the_search_leaves_a_top_with_a_second_imaginary_mode_to_the_full_hessian():
+    # 3-methyl-1,3-pentadiene's planar top at 0 deg: a second imaginary mode (a methyl turning), so
+    # the Hessian with the dihedral frozen is not positive and the search does not vouch for it
+    from torsionscan.freeenergy import stable_with_torsion_frozen
+
+    result = torsionscan.scan("C=C/C(C)=C/C", cores=2, settings=ScanSettings(frequencies=False))
+    bond = result.bonds[0]
+    top = next(m for m in bond.profile.maxima if abs(m.angle_deg) < 1)
+    molecule = load_molecule("C=C/C(C)=C/C")
+    engine = make_engine(molecule.numbers)
+    masses = [a.GetMass() for a in molecule.mol.GetAtoms()]
+    assert stable_with_torsion_frozen(engine.gradients_from_reference, molecule.numbers, masses, top.coords_bohr,
+                                      bond.dihedral_atoms) is None

@@ -115,7 +115,7 @@ def test_a_structure_met_again_turned_or_mirrored_reuses_its_hessian_turned_with
         calls.append(len(structures))
         return _gradients_at(engine)(reference, structures)
 
-    hessians = Hessians(counted, masses)
+    hessians = Hessians(counted, molecule.numbers, masses)
     first, _ = hessians(gauche.coords_bohr)
     spent = sum(calls)
     turn = rotation_matrix(np.array([0.3, -1.0, 0.5]), 2.1)
@@ -156,7 +156,7 @@ def test_a_phenyl_ring_flipped_onto_itself_reuses_the_hessian_with_its_atoms_exc
         calls.append(len(structures))
         return engine.gradients_from_reference(reference, structures)
 
-    hessians = Hessians(counted, masses, atom_orders(molecule.mol))
+    hessians = Hessians(counted, molecule.numbers, masses, atom_orders(molecule.mol))
     hessians(coords)
     spent = sum(calls)
     again, used = hessians(flipped)
@@ -165,5 +165,5 @@ def test_a_phenyl_ring_flipped_onto_itself_reuses_the_hessian_with_its_atoms_exc
     direct = finite_difference_hessian(lambda c: engine.gradients_from_reference(flipped, [c])[0], flipped)
     ours, theirs = harmonic_frequencies(again, masses, used)[0], harmonic_frequencies(direct, masses, flipped)[0]
     assert theirs.min() > 0 and np.abs(ours - theirs).max() < 0.5
-    Hessians(counted, masses)(flipped)  # without the exchanges of equivalent atoms: computed again
+    Hessians(counted, molecule.numbers, masses)(flipped)  # without the exchanges of equivalent atoms: computed again
     assert sum(calls) > spent

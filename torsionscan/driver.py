@@ -343,8 +343,8 @@ def scan(source, *, bond=None, name=None, charge=None, unpaired_electrons=0, rec
     conjugation = CONJUGATION in engine.capabilities
     scans, failed = [], []
     with ParallelRelaxations(factory, molecule.numbers, cores, deadline, graph_bonds(molecule.mol)) as workers:
-        hessians = Hessians(workers.gradients_from_reference, [a.GetMass() for a in molecule.mol.GetAtoms()],
-                             atom_orders(molecule.mol))
+        hessians = Hessians(workers.gradients_from_reference, molecule.numbers,
+                             [a.GetMass() for a in molecule.mol.GetAtoms()], atom_orders(molecule.mol))
         coords, energy, hessian, start_evaluations = relax_start(molecule, workers, settings)
         for b in bonds:
             try:

@@ -3,7 +3,8 @@ points, RRHO/quasi-RRHO thermochemistry, conformer populations from free energie
 dienes the free-energy cost of holding the bond planar s-cis.
 
 Hessians are central finite differences of the engine's analytic gradients (at most 6N-12 gradients,
-step 0.005 Bohr). Thermochemistry follows the ideal-gas rigid-rotor/harmonic-oscillator model
+step 0.005 Bohr); a barrier top whose free energy nothing uses is only verified, by a
+lowest-eigenvalue search with the dihedral frozen (stable_with_torsion_frozen). Thermochemistry follows the ideal-gas rigid-rotor/harmonic-oscillator model
 with Grimme's quasi-RRHO entropy for modes below 100 cm^-1 (S. Grimme, Chem. Eur. J. 2012, 18,
 9955), rotational symmetry number 1 for every conformer (mirror-image conformers are listed
 separately instead), 1 atm. Energies in Hartree inside, kcal/mol in the records.
@@ -25,9 +26,10 @@ from .rotor import (
     BOLTZMANN_WINDOW_RT, conformer_free_energies, eyring_rate, half_life_s, reduced_moment_of_inertia, region_weights,
     rotor_populations, torsional_levels, well_fundamentals, wigner_transmission,
 )
+from .modelhessian import lindh_hessian
 from .thermo import is_s_cis
-from .rrho import conformer_populations, harmonic_frequencies, rrho_thermo
-from .symmetry import symmetric_hessian
+from .rrho import conformer_populations, harmonic_frequencies, internal_basis, rrho_thermo
+from .symmetry import mass_weighted_products, symmetric_hessian
 from .units import HARTREE_KCAL_MOL, rt_kcal_mol
 
 log = logging.getLogger(__name__)
@@ -74,10 +76,11 @@ class Hessians:
     one the other flipped); equivalent displacements of a symmetric structure are skipped
     (symmetry.symmetric_hessian)."""
 
-    def __init__(self, gradients_at, masses_amu, atom_orders=None):
+    def __init__(self, gradients_at, numbers, masses_amu, atom_orders=None):
         """gradients_at(reference, structures): gradients (Hartree/Bohr) at displaced structures (Bohr);
         atom_orders: molecule.atom_orders of the molecule (None: atoms are never exchanged)."""
         self.gradients_at, self.masses = gradients_at, np.asarray(masses_amu, dtype=float)
+        self.numbers = np.asarray(numbers)
         count = len(self.masses)
         self.orders, self.parents = atom_orders or ([np.arange(count)], np.full(count, -1))
         self.done = []  # (coords given, coords used, hessian)
@@ -93,11 +96,52 @@ class Hessians:
                 reordered = hessian[np.ix_(components, components)]
                 return (turn @ reordered @ turn.T,
                         (used[order] - given.mean(axis=0)) @ rotation + coords_bohr.mean(axis=0))
-        # atoms are matched by mass: every atom of one element has the same (average) mass here
-        hessian, used, _ = symmetric_hessian(self.gradients_at, np.round(self.masses, 4), self.masses, coords_bohr,
-                                             FD_STEP_BOHR)
+        hessian, used, _ = symmetric_hessian(self.gradients_at, self.numbers, self.masses, coords_bohr, FD_STEP_BOHR)
         self.done.append((np.array(coords_bohr, dtype=float), used, hessian))
         return hessian, used
+
+
+TOP_SEARCH_START_VECTORS = 4  # lowest model-Hessian modes the search starts from
+TOP_SEARCH_ROUNDS = 6  # rounds of two new directions each before a full Hessian decides
+TOP_SEARCH_RESIDUAL_SHARE = 0.5  # accepted when the residual is below this share of the eigenvalue
+
+
+def stable_with_torsion_frozen(gradients_at, numbers, masses_amu, coords_bohr, dihedral_atoms, step_bohr=FD_STEP_BOHR):
+    """True when the lowest eigenvalue of the mass-weighted Hessian with the dihedral frozen is
+    shown positive by finite-difference Hessian-vector products (block Davidson steps from the
+    lowest modes of the Lindh model Hessian, which also preconditions them); None when that is not
+    shown within TOP_SEARCH_ROUNDS (a full Hessian decides). At a top of the relaxed profile (its
+    relaxed curvature negative) this proves exactly one imaginary mode, along the torsion: the
+    inertia of the Hessian is that of the frozen block plus the sign of the relaxed curvature."""
+    coords = np.asarray(coords_bohr, dtype=float).reshape(-1, 3)
+    inv_sqrt_m = np.repeat(1.0 / np.sqrt(np.asarray(masses_amu, dtype=float)), 3)
+    frozen = internal_basis(masses_amu, coords, [geometry.dihedral_gradient(coords, *dihedral_atoms)])
+
+    def images_of(vectors):  # frozen^T F frozen @ vectors, F the mass-weighted Hessian
+        return frozen.T @ mass_weighted_products(gradients_at, masses_amu, coords, frozen @ vectors, step_bohr)
+
+    model = frozen.T @ (lindh_hessian(numbers, coords) * np.outer(inv_sqrt_m, inv_sqrt_m)) @ frozen
+    basis = np.linalg.eigh(model)[1][:, :TOP_SEARCH_START_VECTORS]
+    images = images_of(basis)
+    for _ in range(TOP_SEARCH_ROUNDS):
+        small = basis.T @ images
+        values, vectors = np.linalg.eigh(0.5 * (small + small.T))
+        if values[0] < 0:
+            return None  # a negative eigenvalue with the torsion frozen: not a simple top
+        residuals = images @ vectors[:, :2] - (basis @ vectors[:, :2]) * values[:2]
+        if np.linalg.norm(residuals[:, 0]) < TOP_SEARCH_RESIDUAL_SHARE * values[0]:
+            return True
+        shifted = [np.linalg.lstsq(model - value * np.eye(len(model)), residual, rcond=None)[0]
+                   for value, residual in zip(values[:2], residuals.T)]
+        new = np.array(shifted).T
+        for _ in range(2):  # orthogonalised twice against the basis
+            new -= basis @ (basis.T @ new)
+        new = geometry.orthonormal_rows(new.T).T
+        if not new.shape[1]:
+            return None
+        basis = np.hstack([basis, new])
+        images = np.hstack([images, images_of(new)])
+    return None
 
 
 def analyse(hessians, masses_amu, coords_bohr, dihedral_atoms, temperatures_k, freeze_torsion=False,
@@ -136,15 +180,45 @@ def _with_vibrations(records, analysed):
     )
 
 
-def _analyse_all(records, hessians, masses, atoms, temperatures, symmetric, moving):
-    """Vibrations of each record; a mirror-image record (symmetric profile) reuses its partner's."""
+def _analyse_all(records, hessians, masses, atoms, temperatures, symmetric, moving, verified=None):
+    """Vibrations of each record; a mirror-image record (symmetric profile) reuses its partner's.
+    verified(record): True when a barrier top is shown simple without a full Hessian (its
+    Vibrations then carry the verdict alone: no frequencies, no free energies)."""
     done, results = {}, []
     for record in records:
-        key = round(abs(record.angle_deg), 1) if symmetric else round(record.angle_deg, 1)
+        key = _key(record, symmetric)
         if key not in done:
-            done[key] = analyse(hessians, masses, record.coords_bohr, atoms, temperatures, moving_atoms=moving)
+            if verified is not None and verified(record):
+                done[key] = Vibrations((), 1, True, (), ())
+            else:
+                done[key] = analyse(hessians, masses, record.coords_bohr, atoms, temperatures, moving_atoms=moving)
         results.append(done[key])
     return results
+
+
+def _key(record, symmetric):
+    return round(abs(record.angle_deg), 1) if symmetric else round(record.angle_deg, 1)
+
+
+def _top_check(profile, hessians, atoms, symmetric, diene):
+    """verified(record) for _analyse_all: a barrier top whose free energy nothing uses (not the top
+    of the lowest way between the s-cis and s-trans regions, not a diene's planar s-cis structure)
+    with a negative relaxed curvature on the fit is verified by stable_with_torsion_frozen."""
+    if profile.fit is None:
+        return None
+    needed = {_key(pair[1], symmetric) for pair in (_crossing(profile, False), _crossing(profile, True)) if pair}
+    if diene:
+        needed |= {_key(r, symmetric) for r in profile.maxima if abs(r.angle_deg) < PLANAR_DEG}
+
+    def verified(record):
+        if _key(record, symmetric) in needed or record.coords_bohr is None or not record.converged:
+            return False
+        if profile.fit.series.second_derivative(record.angle_deg) >= 0:
+            return False
+        return bool(stable_with_torsion_frozen(hessians.gradients_at, hessians.numbers, hessians.masses,
+                                               record.coords_bohr, atoms))
+
+    return verified
 
 
 def rrho_populations(minima, temperatures_k):
@@ -174,17 +248,19 @@ def readiness(minima, planar, temperatures_k):
 
 def add_free_energies(profile, dihedral_atoms, symmetric, workers, hessians, settings, planar_scis_start=None,
                       moving_atoms=None):
-    """The ProfileAnalysis with vibrations at its minima and maxima, RRHO populations and, when
+    """The ProfileAnalysis with vibrations at its minima and maxima (a top no free energy needs
+    carries only its verified nature: _top_check), RRHO populations and, when
     planar_scis_start (coords, hessian) is given (dienes), the planar s-cis record and readiness.
     workers: a parallel.ParallelRelaxations (for the planar s-cis relaxation); hessians: the
-    molecule's Hessians (Hessians(workers.gradients_from_reference, masses)), shared by its bonds:
+    molecule's Hessians (Hessians(workers.gradients_from_reference, numbers, masses)), shared by its bonds:
     the lowest minimum is often one structure for every bond."""
     masses_amu = hessians.masses
     atoms, temperatures = dihedral_atoms, settings.temperatures_k
     minima = _with_vibrations(profile.minima, _analyse_all(profile.minima, hessians, masses_amu, atoms,
                                                            temperatures, symmetric, moving_atoms))
+    verified = _top_check(profile, hessians, atoms, symmetric, planar_scis_start is not None)
     maxima = _with_vibrations(profile.maxima, _analyse_all(profile.maxima, hessians, masses_amu, atoms,
-                                                           temperatures, symmetric, moving_atoms))
+                                                           temperatures, symmetric, moving_atoms, verified))
     update = dict(minima=minima, maxima=maxima, rrho_populations=rrho_populations(minima, temperatures))
     if planar_scis_start is not None and minima:
         # a converged stationary point at 0 deg already is the planar s-cis structure: its Hessian serves

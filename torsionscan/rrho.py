@@ -70,11 +70,21 @@ def _orthonormal_columns(columns):
     return u[:, :rank], u[:, rank:]
 
 
-def internal_basis(masses_amu, coords_bohr):
-    """(3N, 3N-6) orthonormal columns spanning the mass-weighted displacements that neither
-    translate nor rotate the structure (3N-5 for a linear one): the space the frequencies live in."""
+def internal_basis(masses_amu, coords_bohr, extra_directions=None):
+    """(3N, 3N-6-k) orthonormal columns spanning the mass-weighted displacements that neither
+    translate nor rotate the structure (3N-5 for a linear one) nor change, to first order, the
+    constraints whose Cartesian gradients are extra_directions (each 3N or (N, 3), any units):
+    the space the frequencies live in. A constraint gradient g is removed as M^-1/2 g."""
     masses, coords = _as_geometry(masses_amu, coords_bohr)
-    return _orthonormal_columns(_rigid_body_mass_weighted(masses, coords))[1]
+    columns = _rigid_body_mass_weighted(masses, coords)
+    if extra_directions is not None:
+        extra = np.asarray(extra_directions, dtype=float)
+        if extra.size:
+            extra = extra.reshape(-1, 3 * len(masses))
+            if not np.all(np.isfinite(extra)):
+                raise ValueError("extra directions must be finite")
+            columns = np.hstack([columns, (extra * np.repeat(1.0 / np.sqrt(masses), 3)).T])
+    return _orthonormal_columns(columns)[1]
 
 
 def harmonic_frequencies(hessian_hartree_bohr2, masses_amu, coords_bohr, extra_directions=None):
@@ -108,15 +118,7 @@ def harmonic_frequencies(hessian_hartree_bohr2, masses_amu, coords_bohr, extra_d
     inv_sqrt_m = np.repeat(1.0 / np.sqrt(masses), 3)
     hessian_mw = hessian * np.outer(inv_sqrt_m, inv_sqrt_m)
 
-    columns = _rigid_body_mass_weighted(masses, coords)
-    if extra_directions is not None:
-        extra = np.asarray(extra_directions, dtype=float)
-        if extra.size:
-            extra = extra.reshape(-1, dim)
-            if not np.all(np.isfinite(extra)):
-                raise ValueError("extra directions must be finite")
-            columns = np.hstack([columns, (extra * inv_sqrt_m).T])
-    _, complement = _orthonormal_columns(columns)
+    complement = internal_basis(masses, coords, extra_directions)
 
     eigenvalues, vectors = np.linalg.eigh(complement.T @ hessian_mw @ complement)
     frequencies = np.sign(eigenvalues) * np.sqrt(np.abs(eigenvalues)) * _AU_TO_CM1

@@ -131,22 +131,30 @@ def symmetric_hessian(gradients_at, numbers, masses, coords_bohr, step_bohr):
     return block @ frame_hessian @ block.T, reference, len(classes)
 
 
-def internal_hessian(gradients_at, masses, coords_bohr, step_bohr):
-    """(Hessian (3N, 3N), coords (N, 3), gradients used) by central differences along the 3N-6
-    internal directions (rrho.internal_basis, each turned into a Cartesian unit vector and
-    displaced by step_bohr): exact in the space of the vibrations and zero along translations and
-    rotations, which the frequencies leave out. gradients_at as in symmetric_hessian."""
-    coords = np.array(coords_bohr, dtype=float)
-    masses = np.asarray(masses, dtype=float)
-    sqrt_m = np.repeat(np.sqrt(masses), 3)
-    basis = internal_basis(masses, coords)  # mass-weighted, orthonormal
-    directions = basis / sqrt_m[:, None]  # Cartesian
+def mass_weighted_products(gradients_at, masses, coords_bohr, vectors, step_bohr):
+    """(3N, k) mass-weighted Hessian M^-1/2 H M^-1/2 times each mass-weighted column of vectors
+    (3N, k), by central differences of gradients along the matching Cartesian unit directions,
+    each displaced by step_bohr (one gradients_at call, 2k gradients; gradients_at as in
+    symmetric_hessian)."""
+    coords = np.asarray(coords_bohr, dtype=float)
+    inv_sqrt_m = np.repeat(1.0 / np.sqrt(np.asarray(masses, dtype=float)), 3)
+    directions = vectors * inv_sqrt_m[:, None]  # Cartesian
     lengths = np.linalg.norm(directions, axis=0)
     units = directions / lengths
     displaced = [coords + sign * step_bohr * unit.reshape(-1, 3) for unit in units.T for sign in (1, -1)]
     gradients = np.array(gradients_at(coords, displaced)).reshape(len(displaced), -1)
     along = (gradients[0::2] - gradients[1::2]).T / (2 * step_bohr)  # H @ unit, one column per direction
-    internal = basis.T @ (along * lengths / sqrt_m[:, None])  # basis^T M^-1/2 H M^-1/2 basis
+    return along * lengths * inv_sqrt_m[:, None]
+
+
+def internal_hessian(gradients_at, masses, coords_bohr, step_bohr):
+    """(Hessian (3N, 3N), coords (N, 3), gradients used) by central differences along the 3N-6
+    internal directions (rrho.internal_basis): exact in the space of the vibrations and zero
+    along translations and rotations, which the frequencies leave out."""
+    coords = np.array(coords_bohr, dtype=float)
+    sqrt_m = np.repeat(np.sqrt(np.asarray(masses, dtype=float)), 3)
+    basis = internal_basis(masses, coords)  # mass-weighted, orthonormal
+    internal = basis.T @ mass_weighted_products(gradients_at, masses, coords, basis, step_bohr)
     internal = 0.5 * (internal + internal.T)
     weighted = basis @ internal @ basis.T
-    return sqrt_m[:, None] * weighted * sqrt_m[None, :], coords, len(displaced)
+    return sqrt_m[:, None] * weighted * sqrt_m[None, :], coords, 2 * basis.shape[1]
