@@ -82,17 +82,22 @@ def test_a_structure_without_symmetry_is_displaced_along_its_internal_directions
     assert np.abs(hessian @ shift).max() < 1e-12
 
 
+def _gfn2_scan(smiles):
+    """(first bond's profile without frequencies, molecule, masses, GFN2-xTB engine) of a molecule."""
+    from torsionscan.engines import make_engine
+
+    result = torsionscan.scan(smiles, cores=2, settings=torsionscan.ScanSettings(frequencies=False))
+    molecule = load_molecule(smiles)
+    masses = np.array([a.GetMass() for a in molecule.mol.GetAtoms()])
+    return result.bonds[0].profile, molecule, masses, make_engine(molecule.numbers)
+
+
 @pytest.mark.xtb
 def test_internal_directions_give_the_full_hessians_frequencies_with_gfn2_xtb():
     # a twisted (C1) ortho-methylstyrene minimum: every frequency within 0.5 cm-1 of the Cartesian
     # central-difference Hessian's (both are 0.005 Bohr differences of the same gradients)
-    from torsionscan.engines import make_engine
-
-    result = torsionscan.scan("C=Cc1ccccc1C", cores=2, settings=torsionscan.ScanSettings(frequencies=False))
-    molecule = load_molecule("C=Cc1ccccc1C")
-    masses = np.array([a.GetMass() for a in molecule.mol.GetAtoms()])
-    engine = make_engine(molecule.numbers)
-    twisted = next(m for m in result.bonds[0].profile.minima if 20 < abs(m.angle_deg) < 160)
+    profile, molecule, masses, engine = _gfn2_scan("C=Cc1ccccc1C")
+    twisted = next(m for m in profile.minima if 20 < abs(m.angle_deg) < 160)
     coords = np.asarray(twisted.coords_bohr)
     gradients_at = engine.gradients_from_reference
     hessian, _, used = symmetric_hessian(gradients_at, molecule.numbers, masses, coords, FD_STEP_BOHR)
@@ -139,15 +144,11 @@ def test_a_structure_met_again_turned_or_mirrored_reuses_its_hessian_turned_with
 def test_a_phenyl_ring_flipped_onto_itself_reuses_the_hessian_with_its_atoms_exchanged():
     # the planar minima at 0 and 180 deg of a phenyl-vinyl bond are one structure with the ortho
     # (and meta) atoms exchanged: its Hessian, reordered, gives the frequencies computed afresh
-    from torsionscan.engines import make_engine
     from torsionscan.freeenergy import Hessians
     from torsionscan.molecule import atom_orders
 
-    result = torsionscan.scan("C=Cc1ccccc1", cores=2, settings=torsionscan.ScanSettings(frequencies=False))
-    molecule = load_molecule("C=Cc1ccccc1")
-    masses = np.array([a.GetMass() for a in molecule.mol.GetAtoms()])
-    engine = make_engine(molecule.numbers)
-    zero, flipped = sorted(result.bonds[0].profile.minima, key=lambda m: abs(m.angle_deg))
+    profile, molecule, masses, engine = _gfn2_scan("C=Cc1ccccc1")
+    zero, flipped = sorted(profile.minima, key=lambda m: abs(m.angle_deg))
     assert abs(zero.angle_deg) < 1 and abs(flipped.angle_deg) > 179
     coords, flipped = np.asarray(zero.coords_bohr), np.asarray(flipped.coords_bohr)
     calls = []

@@ -146,11 +146,12 @@ def start_hessians(engine, coords_list):
 
 def _carried_over(records, scanned):
     """records with the thermal corrections (and frequencies, for rates) of the scanned record of the
-    same kind nearest in angle; records whose refinement failed (no finite energy) are left out."""
+    same kind nearest in angle among those whose nature was checked (a top verified without a full
+    Hessian carries its verdict alone); records whose refinement failed (no finite energy) are left out."""
     records = tuple(r for r in records if math.isfinite(r.energy_hartree))
     carried = []
     for record in records:
-        same = [s for s in scanned if s.kind == record.kind and s.gibbs_corrections_kcal_mol]
+        same = [s for s in scanned if s.kind == record.kind and s.imaginary_count is not None]
         if not same:
             return records, False
         source = min(same, key=lambda s: abs(wrap_deg(s.angle_deg - record.angle_deg)))
