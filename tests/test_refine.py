@@ -192,3 +192,20 @@ def test_mirror_images_share_one_optimisation(scanned, tmp_path):
     assert len(gauche) == 2 and gauche[0].energy_hartree == gauche[1].energy_hartree
     assert gauche[0].angle_deg == pytest.approx(-gauche[1].angle_deg, abs=1e-9)
     assert analysis.planar_scis.energy_hartree == next(m for m in analysis.maxima if m.angle_deg == 0.0).energy_hartree
+
+
+def test_a_refined_top_takes_the_verdict_of_a_verified_top_not_another_tops_free_energy():
+    # a top verified without a full Hessian (no frequencies, no free energy) stays so at the higher
+    # level: the crossing top's corrections at 90 deg are not carried to the top near 0 deg
+    from torsionscan.records import StationaryRecord
+    from torsionscan.refine import _carried_over
+
+    verified = StationaryRecord("maximum", 0.0, 0.0, -1.0, "scan", True, imaginary_count=1, imaginary_along_torsion=True)
+    crossing = StationaryRecord("maximum", 90.0, 90.0, -1.0, "scan", True, frequencies_cm1=(-80.0, 50.0),
+                                imaginary_count=1, imaginary_along_torsion=True, gibbs_corrections_kcal_mol=(70.0,))
+    refined = StationaryRecord("maximum", 3.0, 3.0, -2.0, "refined", True)
+    (carried,), _ = _carried_over((refined,), (verified, crossing))
+    assert carried.imaginary_count == 1 and carried.imaginary_along_torsion
+    assert carried.gibbs_corrections_kcal_mol == () and carried.frequencies_cm1 == ()
+    (far,), _ = _carried_over((StationaryRecord("maximum", 85.0, 85.0, -2.0, "refined", True),), (verified, crossing))
+    assert far.gibbs_corrections_kcal_mol == (70.0,)
