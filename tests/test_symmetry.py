@@ -168,3 +168,43 @@ def test_a_phenyl_ring_flipped_onto_itself_reuses_the_hessian_with_its_atoms_exc
     assert theirs.min() > 0 and np.abs(ours - theirs).max() < 0.5
     Hessians(counted, molecule.numbers, masses)(flipped)  # without the exchanges of equivalent atoms: computed again
     assert sum(calls) > spent
+
+
+@pytest.mark.xtb
+def test_a_structure_with_its_methyl_hydrogens_renumbered_and_turned_reuses_the_hessian_element_by_element():
+    # acetaldehyde's minimum with its three methyl hydrogens numbered round by one (a 3-cycle, not
+    # its own inverse) and the whole structure turned: the same structure, so the reordered Hessian
+    # must equal one computed there afresh, element by element in the space of the vibrations
+    from torsionscan.engines import make_engine
+    from torsionscan.freeenergy import Hessians
+    from torsionscan.geometry import rotation_matrix
+    from torsionscan.molecule import atom_orders, starting_structures
+    from torsionscan.optimize import Convergence
+    from torsionscan.relax import Relaxer
+    from torsionscan.units import ANGSTROM_BOHR
+
+    molecule = load_molecule("CC=O")
+    masses = np.array([a.GetMass() for a in molecule.mol.GetAtoms()])
+    engine = make_engine(molecule.numbers)
+    tight = Convergence(max_gradient=2e-6, rms_gradient=1e-6, max_evaluations=300)
+    coords = Relaxer(engine, molecule.numbers).relax(starting_structures(molecule, 1)[0] * ANGSTROM_BOHR,
+                                                    tight).x.reshape(-1, 3)
+    methyl = [a.GetIdx() for a in molecule.mol.GetAtomWithIdx(0).GetNeighbors() if a.GetAtomicNum() == 1]
+    renumbered = np.arange(len(coords))
+    renumbered[methyl] = np.roll(methyl, 1)
+    moved = (coords[renumbered] - coords.mean(axis=0)) @ rotation_matrix(np.array([0.2, 1.0, -0.4]), 1.3) + 3.0
+    calls = []
+
+    def counted(reference, structures):
+        calls.append(len(structures))
+        return engine.gradients_from_reference(reference, structures)
+
+    hessians = Hessians(counted, molecule.numbers, masses, atom_orders(molecule.mol))
+    hessians(coords)
+    spent = sum(calls)
+    again, used = hessians(moved)
+    assert sum(calls) == spent and np.abs(used - moved).max() < 1e-4  # the structure made exactly Cs
+    direct, _, _ = symmetric_hessian(lambda r, s: engine.gradients_from_reference(r, s), molecule.numbers, masses,
+                                     moved, FD_STEP_BOHR)
+    ours, theirs = _vibrational_block(again, masses, moved), _vibrational_block(direct, masses, moved)
+    assert np.abs(ours - theirs).max() < 1e-3 * np.abs(theirs).max()

@@ -102,27 +102,35 @@ def matched_superposition(moved, fixed, orders, parents):
     """(order, R, largest atom distance in Bohr) of the best superposition of `moved` onto `fixed`
     with equivalent atoms exchanged: fixed ~ (moved[order] - its centre) @ R + fixed's centre.
 
-    orders, parents: molecule.atom_orders. Each heavy-atom order is laid on by superposition; each
-    heavy atom's hydrogens then go to the nearest arrangement of its partner's hydrogens."""
+    orders, parents: molecule.atom_orders. Each heavy-atom order is laid on by superposition, in
+    both handednesses (a planar heavy-atom frame does not fix the side of its hydrogens); each heavy
+    atom's hydrogens then go to the nearest arrangement of its partner's hydrogens. The atoms as
+    numbered are tried first."""
     moved, fixed = np.asarray(moved, dtype=float), np.asarray(fixed, dtype=float)
+    identity = np.arange(len(moved))
+    rotation, distance = superposition(moved, fixed)
+    best = (identity, rotation, distance)
     heavy = parents < 0
-    best = (None, None, np.inf)
     for heavy_order in orders:
         partners = heavy_order[heavy]
-        rotation, _ = superposition(fixed[heavy], moved[partners])  # moved ~ fixed turned
-        laid = (fixed - fixed[heavy].mean(axis=0)) @ rotation + moved[partners].mean(axis=0)
-        order = heavy_order.copy()
-        for atom in np.flatnonzero(heavy):
-            ours, theirs = np.flatnonzero(parents == atom), np.flatnonzero(parents == heavy_order[atom])
-            if len(ours) != len(theirs):
-                break
-            if len(ours):
-                order[ours] = min(itertools.permutations(theirs),
-                                  key=lambda p: float(np.sum((laid[ours] - moved[list(p)]) ** 2)))
-        else:
-            rotation, distance = superposition(moved[order], fixed)
-            if distance < best[2]:
-                best = (order, rotation, distance)
+        p = fixed[heavy] - fixed[heavy].mean(axis=0)
+        q = moved[partners] - moved[partners].mean(axis=0)
+        u, _, vt = np.linalg.svd(p.T @ q)
+        for hand in (1.0, -1.0):  # moved ~ fixed turned, and its mirror through the least-defined axis
+            turn = u @ np.diag([1.0, 1.0, hand]) @ vt
+            laid = (fixed - fixed[heavy].mean(axis=0)) @ turn + moved[partners].mean(axis=0)
+            order = heavy_order.copy()
+            for atom in np.flatnonzero(heavy):
+                ours, theirs = np.flatnonzero(parents == atom), np.flatnonzero(parents == heavy_order[atom])
+                if len(ours) != len(theirs):
+                    break
+                if len(ours):
+                    order[ours] = min(itertools.permutations(theirs),
+                                      key=lambda t: float(np.sum((laid[ours] - moved[list(t)]) ** 2)))
+            else:
+                rotation, distance = superposition(moved[order], fixed)
+                if distance < best[2]:
+                    best = (order, rotation, distance)
     return best
 
 
