@@ -127,6 +127,7 @@ def test_the_search_leaves_a_top_with_a_second_imaginary_mode_to_the_full_hessia
     # 3-methyl-1,3-pentadiene's planar top at 0 deg: a second imaginary mode (a methyl turning), so
     # the Hessian with the dihedral frozen is not positive and the search does not vouch for it
     from torsionscan.freeenergy import stable_with_torsion_frozen
+    from torsionscan.geometry import dihedral_gradient
 
     result = torsionscan.scan("C=C/C(C)=C/C", cores=2, settings=ScanSettings(frequencies=False))
     bond = result.bonds[0]
@@ -134,5 +135,9 @@ def test_the_search_leaves_a_top_with_a_second_imaginary_mode_to_the_full_hessia
     molecule = load_molecule("C=C/C(C)=C/C")
     engine = make_engine(molecule.numbers)
     masses = [a.GetMass() for a in molecule.mol.GetAtoms()]
-    assert stable_with_torsion_frozen(engine.gradients_from_reference, molecule.numbers, masses, top.coords_bohr,
+    coords = np.asarray(top.coords_bohr)
+    hessian = finite_difference_hessian(lambda c: engine.gradients_from_reference(coords, [c])[0], coords)
+    frozen = harmonic_frequencies(hessian, masses, coords, [dihedral_gradient(coords, *bond.dihedral_atoms)])[0]
+    assert frozen[0] < 0  # the full Hessian: an imaginary mode that freezing the dihedral does not remove
+    assert stable_with_torsion_frozen(engine.gradients_from_reference, molecule.numbers, masses, coords,
                                       bond.dihedral_atoms) is None

@@ -209,3 +209,6 @@ def test_a_refined_top_takes_the_verdict_of_a_verified_top_not_another_tops_free
     assert carried.gibbs_corrections_kcal_mol == () and carried.frequencies_cm1 == ()
     (far,), _ = _carried_over((StationaryRecord("maximum", 85.0, 85.0, -2.0, "refined", True),), (verified, crossing))
     assert far.gibbs_corrections_kcal_mol == (70.0,)
+    # a top the refined profile's rates use takes the nearest top with corrections, not a verdict alone
+    (needed,), _ = _carried_over((refined,), (verified, crossing), needed=(refined,))
+    assert needed.gibbs_corrections_kcal_mol == (70.0,)

@@ -140,17 +140,12 @@ def test_a_structure_met_again_turned_or_mirrored_reuses_its_hessian_turned_with
     assert sum(calls) > spent
 
 
-@pytest.mark.xtb
-def test_a_phenyl_ring_flipped_onto_itself_reuses_the_hessian_with_its_atoms_exchanged():
-    # the planar minima at 0 and 180 deg of a phenyl-vinyl bond are one structure with the ortho
-    # (and meta) atoms exchanged: its Hessian, reordered, gives the frequencies computed afresh
+def _met_again(engine, molecule, masses, first, second):
+    """(Hessian, structure, counting gradients_at, its calls) for `second` from a Hessians (with the
+    molecule's equivalent atom orders) that did `first`; asserts that it took no new gradient."""
     from torsionscan.freeenergy import Hessians
     from torsionscan.molecule import atom_orders
 
-    profile, molecule, masses, engine = _gfn2_scan("C=Cc1ccccc1")
-    zero, flipped = sorted(profile.minima, key=lambda m: abs(m.angle_deg))
-    assert abs(zero.angle_deg) < 1 and abs(flipped.angle_deg) > 179
-    coords, flipped = np.asarray(zero.coords_bohr), np.asarray(flipped.coords_bohr)
     calls = []
 
     def counted(reference, structures):
@@ -158,10 +153,25 @@ def test_a_phenyl_ring_flipped_onto_itself_reuses_the_hessian_with_its_atoms_exc
         return engine.gradients_from_reference(reference, structures)
 
     hessians = Hessians(counted, molecule.numbers, masses, atom_orders(molecule.mol))
-    hessians(coords)
+    hessians(first)
     spent = sum(calls)
-    again, used = hessians(flipped)
+    again, used = hessians(second)
     assert sum(calls) == spent  # no new gradient
+    return again, used, counted, calls
+
+
+@pytest.mark.xtb
+def test_a_phenyl_ring_flipped_onto_itself_reuses_the_hessian_with_its_atoms_exchanged():
+    # the planar minima at 0 and 180 deg of a phenyl-vinyl bond are one structure with the ortho
+    # (and meta) atoms exchanged: its Hessian, reordered, gives the frequencies computed afresh
+    from torsionscan.freeenergy import Hessians
+
+    profile, molecule, masses, engine = _gfn2_scan("C=Cc1ccccc1")
+    zero, flipped = sorted(profile.minima, key=lambda m: abs(m.angle_deg))
+    assert abs(zero.angle_deg) < 1 and abs(flipped.angle_deg) > 179
+    coords, flipped = np.asarray(zero.coords_bohr), np.asarray(flipped.coords_bohr)
+    again, used, counted, calls = _met_again(engine, molecule, masses, coords, flipped)
+    spent = sum(calls)
     assert np.abs(used - flipped).max() < 0.02
     direct = finite_difference_hessian(lambda c: engine.gradients_from_reference(flipped, [c])[0], flipped)
     ours, theirs = harmonic_frequencies(again, masses, used)[0], harmonic_frequencies(direct, masses, flipped)[0]
@@ -176,9 +186,8 @@ def test_a_structure_with_its_methyl_hydrogens_renumbered_and_turned_reuses_the_
     # its own inverse) and the whole structure turned: the same structure, so the reordered Hessian
     # must equal one computed there afresh, element by element in the space of the vibrations
     from torsionscan.engines import make_engine
-    from torsionscan.freeenergy import Hessians
     from torsionscan.geometry import rotation_matrix
-    from torsionscan.molecule import atom_orders, starting_structures
+    from torsionscan.molecule import starting_structures
     from torsionscan.optimize import Convergence
     from torsionscan.relax import Relaxer
     from torsionscan.units import ANGSTROM_BOHR
@@ -193,17 +202,8 @@ def test_a_structure_with_its_methyl_hydrogens_renumbered_and_turned_reuses_the_
     renumbered = np.arange(len(coords))
     renumbered[methyl] = np.roll(methyl, 1)
     moved = (coords[renumbered] - coords.mean(axis=0)) @ rotation_matrix(np.array([0.2, 1.0, -0.4]), 1.3) + 3.0
-    calls = []
-
-    def counted(reference, structures):
-        calls.append(len(structures))
-        return engine.gradients_from_reference(reference, structures)
-
-    hessians = Hessians(counted, molecule.numbers, masses, atom_orders(molecule.mol))
-    hessians(coords)
-    spent = sum(calls)
-    again, used = hessians(moved)
-    assert sum(calls) == spent and np.abs(used - moved).max() < 1e-4  # the structure made exactly Cs
+    again, used, _, _ = _met_again(engine, molecule, masses, coords, moved)
+    assert np.abs(used - moved).max() < 1e-4  # the structure made exactly Cs
     direct, _, _ = symmetric_hessian(lambda r, s: engine.gradients_from_reference(r, s), molecule.numbers, masses,
                                      moved, FD_STEP_BOHR)
     ours, theirs = _vibrational_block(again, masses, moved), _vibrational_block(direct, masses, moved)

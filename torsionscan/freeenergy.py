@@ -74,7 +74,8 @@ class Hessians:
     (the planar s-cis structure and a stationary point at 0 deg; the lowest minimum reached from
     the scans of two bonds, each in its own frame; the two planar minima of a phenyl ring's bond,
     one the other flipped); equivalent displacements of a symmetric structure are skipped
-    (symmetry.symmetric_hessian)."""
+    (symmetry.symmetric_hessian), and a structure without symmetry gets the internal-space
+    Hessian (zero along translations and rotations, symmetry.internal_hessian)."""
 
     def __init__(self, gradients_at, numbers, masses_amu, atom_orders=None):
         """gradients_at(reference, structures): gradients (Hartree/Bohr) at displaced structures (Bohr);
@@ -101,18 +102,21 @@ class Hessians:
         return hessian, used
 
 
-TOP_SEARCH_START_VECTORS = 4  # lowest model-Hessian modes the search starts from
-TOP_SEARCH_ROUNDS = 6  # rounds of two new directions each before a full Hessian decides
-TOP_SEARCH_RESIDUAL_SHARE = 0.5  # accepted when the residual is below this share of the eigenvalue
+TOP_SEARCH_START_VECTORS = 6  # lowest model-Hessian modes the search starts from
+TOP_SEARCH_ROUNDS = 8  # rounds (the first, then two new directions each) before a full Hessian decides
+TOP_SEARCH_RESIDUAL_SHARE = 0.25  # accepted when the residual is below this share of the eigenvalue
 
 
 def stable_with_torsion_frozen(gradients_at, numbers, masses_amu, coords_bohr, dihedral_atoms, step_bohr=FD_STEP_BOHR):
     """True when the lowest eigenvalue of the mass-weighted Hessian with the dihedral frozen is
-    shown positive by finite-difference Hessian-vector products (block Davidson steps from the
-    lowest modes of the Lindh model Hessian, which also preconditions them); None when that is not
-    shown within TOP_SEARCH_ROUNDS (a full Hessian decides). At a top of the relaxed profile (its
-    relaxed curvature negative) this proves exactly one imaginary mode, along the torsion: the
-    inertia of the Hessian is that of the frozen block plus the sign of the relaxed curvature."""
+    found positive by finite-difference Hessian-vector products (block Davidson steps from the
+    TOP_SEARCH_START_VECTORS softest modes of the Lindh model Hessian, which also preconditions
+    them); None when it is found negative or not settled within TOP_SEARCH_ROUNDS (a full Hessian
+    decides). At a top of the relaxed profile (relaxed curvature negative) a positive frozen block
+    means exactly one imaginary mode, along the torsion: the inertia of the Hessian is that of the
+    frozen block plus the sign of the relaxed curvature. The search bounds the lowest eigenvalue
+    from above only, so a negative mode outside everything it explores would be missed; checked
+    against full Hessians at 15 GFN2-xTB tops, every verdict agreed."""
     coords = np.asarray(coords_bohr, dtype=float).reshape(-1, 3)
     inv_sqrt_m = np.repeat(1.0 / np.sqrt(np.asarray(masses_amu, dtype=float)), 3)
     frozen = internal_basis(masses_amu, coords, [geometry.dihedral_gradient(coords, *dihedral_atoms)])
@@ -123,7 +127,7 @@ def stable_with_torsion_frozen(gradients_at, numbers, masses_amu, coords_bohr, d
     model = frozen.T @ (lindh_hessian(numbers, coords) * np.outer(inv_sqrt_m, inv_sqrt_m)) @ frozen
     basis = np.linalg.eigh(model)[1][:, :TOP_SEARCH_START_VECTORS]
     images = images_of(basis)
-    for _ in range(TOP_SEARCH_ROUNDS):
+    for round_ in range(TOP_SEARCH_ROUNDS):
         small = basis.T @ images
         values, vectors = np.linalg.eigh(0.5 * (small + small.T))
         if values[0] < 0:
@@ -131,6 +135,8 @@ def stable_with_torsion_frozen(gradients_at, numbers, masses_amu, coords_bohr, d
         residuals = images @ vectors[:, :2] - (basis @ vectors[:, :2]) * values[:2]
         if np.linalg.norm(residuals[:, 0]) < TOP_SEARCH_RESIDUAL_SHARE * values[0]:
             return True
+        if round_ == TOP_SEARCH_ROUNDS - 1:
+            break
         shifted = [np.linalg.lstsq(model - value * np.eye(len(model)), residual, rcond=None)[0]
                    for value, residual in zip(values[:2], residuals.T)]
         new = np.array(shifted).T
@@ -138,7 +144,7 @@ def stable_with_torsion_frozen(gradients_at, numbers, masses_amu, coords_bohr, d
             new -= basis @ (basis.T @ new)
         new = geometry.orthonormal_rows(new.T).T
         if not new.shape[1]:
-            return None
+            break
         basis = np.hstack([basis, new])
         images = np.hstack([images, images_of(new)])
     return None
@@ -206,7 +212,7 @@ def _top_check(profile, hessians, atoms, symmetric, diene):
     with a negative relaxed curvature on the fit is verified by stable_with_torsion_frozen."""
     if profile.fit is None:
         return None
-    needed = {_key(pair[1], symmetric) for pair in (_crossing(profile, False), _crossing(profile, True)) if pair}
+    needed = {_key(top, symmetric) for top in crossing_tops(profile)}
     if diene:
         needed |= {_key(r, symmetric) for r in profile.maxima if abs(r.angle_deg) < PLANAR_DEG}
 
@@ -340,6 +346,12 @@ def torsion_as_rotor(profile, masses_amu, dihedral_atoms, moving_atoms, temperat
         free = tuple(free)
     return replace(profile, rotor_inertia_amu_bohr2=inertia, rotor=rotor, wells=well_fundamentals(series, inertia),
                    free_energies=free)
+
+
+def crossing_tops(profile):
+    """The barrier tops of the lowest ways out of each region's lowest minimum into the other
+    region (those whose free energies the interconversion rates use; none, one or two records)."""
+    return [pair[1] for pair in (_crossing(profile, False), _crossing(profile, True)) if pair]
 
 
 def _crossing(profile, from_cis):

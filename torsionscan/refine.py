@@ -33,7 +33,7 @@ from .coordinate import DihedralConstraint, mirror
 from .driver import BondScanner
 from .engines import make_engine
 from .errors import CalculationError, InputError
-from .freeenergy import finite_difference_hessian, readiness, rotor_and_rates, rrho_populations
+from .freeenergy import crossing_tops, finite_difference_hessian, readiness, rotor_and_rates, rrho_populations
 from .geometry import dihedral
 from .molecule import Molecule, TorsionBond, is_diene_bond
 from .records import ProfileAnalysis, ReferencePoint, RefinedProfile, ScanPoint, StationaryRecord
@@ -144,14 +144,17 @@ def start_hessians(engine, coords_list):
     return [finite_difference_hessian(lambda c: engine.energy_and_gradient(c)[1], coords) for coords in coords_list]
 
 
-def _carried_over(records, scanned):
+def _carried_over(records, scanned, needed=()):
     """records with the thermal corrections (and frequencies, for rates) of the scanned record of the
     same kind nearest in angle among those whose nature was checked (a top verified without a full
-    Hessian carries its verdict alone); records whose refinement failed (no finite energy) are left out."""
+    Hessian carries its verdict alone; a record in needed, a top the rates use, takes the nearest
+    with corrections); records whose refinement failed (no finite energy) are left out."""
     records = tuple(r for r in records if math.isfinite(r.energy_hartree))
     carried = []
     for record in records:
         same = [s for s in scanned if s.kind == record.kind and s.imaginary_count is not None]
+        if any(record is n for n in needed):
+            same = [s for s in same if s.gibbs_corrections_kcal_mol]
         if not same:
             return records, False
         source = min(same, key=lambda s: abs(wrap_deg(s.angle_deg - record.angle_deg)))
@@ -165,7 +168,7 @@ def _carried_over(records, scanned):
 def _with_free_energies(analysis, scanned, planar, temperatures_k):
     """The analysis with carried-over corrections, free-energy populations and (dienes) readiness."""
     minima, ok = _carried_over(analysis.minima, scanned.minima)
-    maxima, _ = _carried_over(analysis.maxima, scanned.maxima)
+    maxima, _ = _carried_over(analysis.maxima, scanned.maxima, crossing_tops(analysis))
     if not ok or not minima:
         return replace(analysis, minima=minima, maxima=maxima, planar_scis=planar)
     update = dict(minima=minima, maxima=maxima, rrho_populations=rrho_populations(minima, temperatures_k),
