@@ -2,9 +2,10 @@
 points, RRHO/quasi-RRHO thermochemistry, conformer populations from free energies, and for
 dienes the free-energy cost of holding the bond planar s-cis.
 
-Hessians are central finite differences of the engine's analytic gradients (at most 6N-12 gradients,
-step 0.005 Bohr); a barrier top whose free energy nothing uses is only verified, by a
-lowest-eigenvalue search with the dihedral frozen (stable_with_torsion_frozen). Thermochemistry follows the ideal-gas rigid-rotor/harmonic-oscillator model
+Hessians are central finite differences of the engine's analytic gradients (at most 6N-12
+gradients, step 0.005 Bohr); a barrier top whose free energy nothing uses is only verified, by a
+lowest-eigenvalue search with the dihedral frozen (stable_with_torsion_frozen). Thermochemistry
+follows the ideal-gas rigid-rotor/harmonic-oscillator model
 with Grimme's quasi-RRHO entropy for modes below 100 cm^-1 (S. Grimme, Chem. Eur. J. 2012, 18,
 9955), rotational symmetry number 1 for every conformer (mirror-image conformers are listed
 separately instead), 1 atm. Energies in Hartree inside, kcal/mol in the records.
