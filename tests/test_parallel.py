@@ -106,7 +106,7 @@ def test_displaced_gradients_stop_between_structures_when_a_share_beside_them_fa
                 raise CalculationError("SCF failed at a displaced structure")
             return super().energy_and_gradient(coords_bohr)
 
-    # two shares of 20: the first reaches a failing structure at its third, the second never would
+    # structures handed out in turn: the third fails, the other thread is stopped at its next structure
     structures = [np.full((3, 3), 2.0 * i if i < 20 else 0.5) for i in range(40)]
     workers = ParallelRelaxations(lambda: FailsAfterThree(0.05), np.ones(3, dtype=int), 2)
     with workers:

@@ -82,13 +82,13 @@ class WarmStartEngine:
         return float(energy), np.array(gradient, dtype=float)
 
     def gradients_from_reference(self, reference_bohr, structures_bohr, before_each=None):
-        """Gradients (N, 3) in Hartree/Bohr at each structure (N, 3) Bohr, every SCF started from the
-        converged wavefunction at reference_bohr (itself computed from scratch): the values do not
-        depend on their order or on which thread computes them (finite-difference Hessians).
-        before_each(): called before each structure's SCF (a deadline check that may raise)."""
+        """Gradients (N, 3) in Hartree/Bohr at each structure (N, 3) Bohr of an iterable, every SCF
+        started from the converged wavefunction at reference_bohr (itself computed from scratch): the
+        values do not depend on their order or on which thread computes them (finite-difference
+        Hessians). before_each(): called before each structure's SCF (a deadline check that may raise)."""
         reference_bohr = np.ascontiguousarray(reference_bohr, dtype=float)
-        self.evaluations += 1 + len(structures_bohr)
         try:
+            self.evaluations += 1
             calculator = self._new_calculator(reference_bohr)
             reference = calculator.singlepoint()
             gradients = []
@@ -96,6 +96,7 @@ class WarmStartEngine:
                 if before_each is not None:
                     before_each()
                 coords = np.ascontiguousarray(coords, dtype=float)
+                self.evaluations += 1
                 self._move(calculator, coords)
                 try:
                     result = calculator.singlepoint(reference, copy=True)
