@@ -2,8 +2,8 @@
 points, RRHO/quasi-RRHO thermochemistry, conformer populations from free energies, and for
 dienes the free-energy cost of holding the bond planar s-cis.
 
-Hessians are central finite differences of the engine's analytic gradients (at most 6N-12
-gradients, step 0.005 Bohr); a barrier top whose free energy nothing uses is only verified, by a
+Hessians are finite differences of the engine's analytic gradients along model normal modes
+(symmetry.symmetric_hessian: about 3.5N gradients instead of 6N); a barrier top whose free energy nothing uses is only verified, by a
 lowest-eigenvalue search with the dihedral frozen (stable_with_torsion_frozen). Thermochemistry
 follows the ideal-gas rigid-rotor/harmonic-oscillator model
 with Grimme's quasi-RRHO entropy for modes below 100 cm^-1 (S. Grimme, Chem. Eur. J. 2012, 18,
@@ -74,9 +74,8 @@ class Hessians:
     onto it and with equivalent atoms exchanged, reuses its Hessian, reordered and turned with it
     (the planar s-cis structure and a stationary point at 0 deg; the lowest minimum reached from
     the scans of two bonds, each in its own frame; the two planar minima of a phenyl ring's bond,
-    one the other flipped); equivalent displacements of a symmetric structure are skipped
-    (symmetry.symmetric_hessian), and a structure without symmetry gets the internal-space
-    Hessian (zero along translations and rotations, symmetry.internal_hessian)."""
+    one the other flipped); each new one is built along the symmetry-adapted modes of the Lindh
+    model Hessian (symmetry.symmetric_hessian, zero along translations and rotations)."""
 
     def __init__(self, gradients_at, numbers, masses_amu, atom_orders=None):
         """gradients_at(reference, structures): gradients (Hartree/Bohr) at displaced structures (Bohr);
@@ -98,7 +97,8 @@ class Hessians:
                 reordered = hessian[np.ix_(components, components)]
                 return (turn @ reordered @ turn.T,
                         (used[order] - given.mean(axis=0)) @ rotation + coords_bohr.mean(axis=0))
-        hessian, used, _ = symmetric_hessian(self.gradients_at, self.numbers, self.masses, coords_bohr, FD_STEP_BOHR)
+        hessian, used, _ = symmetric_hessian(self.gradients_at, self.numbers, self.masses, coords_bohr,
+                                             lindh_hessian(self.numbers, coords_bohr), FD_STEP_BOHR)
         self.done.append((np.array(coords_bohr, dtype=float), used, hessian))
         return hessian, used
 

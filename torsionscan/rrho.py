@@ -22,7 +22,7 @@ from .units import (
 )
 
 # sqrt(eigenvalue in Hartree/(Bohr^2 amu)) -> wavenumber in cm^-1
-_AU_TO_CM1 = math.sqrt(HARTREE_J / (BOHR_M**2 * AMU_KG)) / (2.0 * math.pi * SPEED_OF_LIGHT_M_S * 100.0)
+AU_TO_CM1 = math.sqrt(HARTREE_J / (BOHR_M**2 * AMU_KG)) / (2.0 * math.pi * SPEED_OF_LIGHT_M_S * 100.0)
 
 # Average moment of inertia (kg m^2) that caps the free-rotor moment of very soft modes
 QUASI_RRHO_AVERAGE_MOMENT_KG_M2 = 1e-44
@@ -121,7 +121,7 @@ def harmonic_frequencies(hessian_hartree_bohr2, masses_amu, coords_bohr, extra_d
     complement = internal_basis(masses, coords, extra_directions)
 
     eigenvalues, vectors = np.linalg.eigh(complement.T @ hessian_mw @ complement)
-    frequencies = np.sign(eigenvalues) * np.sqrt(np.abs(eigenvalues)) * _AU_TO_CM1
+    frequencies = np.sign(eigenvalues) * np.sqrt(np.abs(eigenvalues)) * AU_TO_CM1
     modes = (inv_sqrt_m[:, None] * (complement @ vectors)).T
     if len(modes):
         modes /= np.linalg.norm(modes, axis=1, keepdims=True)
