@@ -59,9 +59,20 @@ def test_bond_angle_gradient_matches_finite_differences(pentadiene_coords):
         u, v = c[0] - c[1], c[2] - c[1]
         return np.arccos(np.dot(u, v) / np.linalg.norm(u) / np.linalg.norm(v))
 
-    np.testing.assert_allclose(
-        geometry.bond_angle_gradient(coords, 0, 1, 2), _central_difference(angle, coords), atol=1e-8
-    )
+    numeric = _central_difference(angle, coords)
+    (analytic,) = geometry.bond_angle_gradients(coords, np.array([0]), np.array([1]), np.array([2]))
+    np.testing.assert_allclose(analytic, numeric[:3], atol=1e-8)
+    assert np.abs(numeric[3:]).max() < 1e-8
+
+
+def test_many_dihedral_gradients_at_once_equal_the_one_at_a_time_gradient(pentadiene_coords):
+    _, coords = pentadiene_coords
+    quartets = np.array([(0, 1, 2, 3), (1, 2, 3, 4), (5, 0, 1, 2), (4, 3, 2, 1)])
+    many = geometry.dihedral_gradients(coords, *quartets.T)
+    for quartet, gradients in zip(quartets, many):
+        one = geometry.dihedral_gradient(coords, *quartet)
+        np.testing.assert_allclose(gradients, one[quartet], rtol=1e-12, atol=1e-14)
+        assert np.abs(np.delete(one, quartet, axis=0)).max() == 0.0
 
 
 def test_rotation_about_bond_changes_dihedral_by_exactly_the_angle(pentadiene_coords):

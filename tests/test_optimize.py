@@ -65,7 +65,8 @@ def _four_atom_model():
             u, v = c[i] - c[j], c[k] - c[j]
             theta = np.arccos(np.dot(u, v) / np.linalg.norm(u) / np.linalg.norm(v))
             energy += 0.1 * (theta - np.radians(120)) ** 2
-            grad += 0.2 * (theta - np.radians(120)) * geometry.bond_angle_gradient(c, i, j, k)
+            (along,) = geometry.bond_angle_gradients(c, np.array([i]), np.array([j]), np.array([k]))
+            grad[[i, j, k]] += 0.2 * (theta - np.radians(120)) * along
         phi = geometry.dihedral(c, 0, 1, 2, 3)
         energy += 0.01 * (1 - np.cos(2 * phi))
         grad += 0.02 * np.sin(2 * phi) * geometry.dihedral_gradient(c, 0, 1, 2, 3)

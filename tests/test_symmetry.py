@@ -233,4 +233,7 @@ def test_a_structure_with_its_methyl_hydrogens_renumbered_and_turned_reuses_the_
     assert np.abs(used - moved).max() < 1e-4  # the structure made exactly Cs
     direct, _, _ = _mode_hessian(engine.gradients_from_reference, molecule, masses, moved)
     ours, theirs = _vibrational_block(again, masses, moved), _vibrational_block(direct, masses, moved)
-    assert np.abs(ours - theirs).max() < 1e-3 * np.abs(theirs).max()
+    # within the forward differences' O(h) error, which differs between the two because each is built
+    # along the modes of its own numbering (about 2e-3 of the largest element); a wrong reordering of the
+    # methyl hydrogens would be off by a large share of it
+    assert np.abs(ours - theirs).max() < 5e-3 * np.abs(theirs).max()

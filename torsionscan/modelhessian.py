@@ -9,7 +9,7 @@ the starting Hessian, so small deviations change step counts, not results).
 
 import numpy as np
 
-from .geometry import bond_angle_gradient, dihedral_gradient
+from .geometry import bond_angle_gradients, dihedral_gradients
 
 # rows of the periodic table grouped as H-He, Li-Ne, Na and beyond
 _ALPHA = np.array([[1.0000, 0.3949, 0.3949], [0.3949, 0.2800, 0.2800], [0.3949, 0.2800, 0.2800]])
@@ -25,18 +25,22 @@ def _row(atomic_number):
     return 0 if atomic_number <= 2 else (1 if atomic_number <= 10 else 2)
 
 
-def _add_term(hessian, force_constant, atoms, gradient):
-    """Add force_constant * b b^T for an internal coordinate with Cartesian gradient b."""
-    index = np.ravel([[3 * a, 3 * a + 1, 3 * a + 2] for a in atoms])
-    b = gradient[list(atoms)].ravel()
-    hessian[np.ix_(index, index)] += force_constant * np.outer(b, b)
+def _sines(first, vertex, last):
+    """Sines of the angles first-vertex-last, each (M, 3) positions -> (M,)."""
+    u, v = first - vertex, last - vertex
+    cos_t = np.einsum("mi,mi->m", u, v) / (np.linalg.norm(u, axis=1) * np.linalg.norm(v, axis=1))
+    return np.sqrt(np.maximum(0.0, 1.0 - cos_t * cos_t))
 
 
-def _sine_of_angle(coords, i, j, k):
-    u = coords[i] - coords[j]
-    v = coords[k] - coords[j]
-    cos_t = np.dot(u, v) / (np.linalg.norm(u) * np.linalg.norm(v))
-    return np.sqrt(max(0.0, 1.0 - cos_t * cos_t))
+def _add_terms(hessian, force_constants, atoms, gradients):
+    """Add sum over terms m of force_constants[m] b_m b_m^T, b_m the Cartesian gradient (3N,) of
+    internal coordinate m whose atoms (M, p) carry gradients (M, p, 3)."""
+    if not len(force_constants):
+        return
+    rows = np.zeros((len(force_constants), hessian.shape[0]))
+    columns = (3 * atoms[:, :, None] + np.arange(3)).reshape(len(atoms), -1)
+    np.put_along_axis(rows, columns, gradients.reshape(len(atoms), -1), axis=1)
+    hessian += rows.T @ (force_constants[:, None] * rows)
 
 
 def lindh_hessian(numbers, coords):
@@ -61,24 +65,19 @@ def lindh_hessian(numbers, coords):
     hessian += full
 
     neighbours = [np.flatnonzero(weight[a] > _NEIGHBOUR_WEIGHT) for a in range(n)]
-    for j in range(n):
-        near = neighbours[j]
-        for p, i in enumerate(near):
-            for k in near[p + 1:]:
-                if _sine_of_angle(coords, i, j, k) < _SMALLEST_SINE:
-                    continue
-                force = _K_BEND * weight[i, j] * weight[j, k]
-                _add_term(hessian, force, (i, j, k), bond_angle_gradient(coords, i, j, k))
-    for j in range(n):
-        for k in neighbours[j]:
-            if k <= j:
-                continue
-            for i in neighbours[j]:
-                if i == k or _sine_of_angle(coords, i, j, k) < _SMALLEST_SINE:
-                    continue
-                for l in neighbours[k]:
-                    if l in (i, j) or _sine_of_angle(coords, j, k, l) < _SMALLEST_SINE:
-                        continue
-                    force = _K_TORSION * weight[i, j] * weight[j, k] * weight[k, l]
-                    _add_term(hessian, force, (i, j, k, l), dihedral_gradient(coords, i, j, k, l))
+    # bends i-j-k (i < k, both near j) through angles that are not nearly linear
+    angles = np.array([(i, j, k) for j in range(n) for p, i in enumerate(neighbours[j]) for k in neighbours[j][p + 1:]],
+                      dtype=int).reshape(-1, 3)
+    angles = angles[_sines(coords[angles[:, 0]], coords[angles[:, 1]], coords[angles[:, 2]]) >= _SMALLEST_SINE]
+    i, j, k = angles.T
+    _add_terms(hessian, _K_BEND * weight[i, j] * weight[j, k], angles, bond_angle_gradients(coords, i, j, k))
+    # torsions i-j-k-l about each near pair j < k, through two angles that are not nearly linear
+    bent = {(int(i), int(j), int(k)) for i, j, k in angles} | {(int(k), int(j), int(i)) for i, j, k in angles}
+    torsions = np.array([(i, j, k, l) for j in range(n) for k in neighbours[j] if k > j
+                         for i in neighbours[j] if i != k and (i, j, k) in bent
+                         for l in neighbours[k] if l != i and l != j and (j, k, l) in bent],
+                        dtype=int).reshape(-1, 4)
+    i, j, k, l = torsions.T
+    _add_terms(hessian, _K_TORSION * weight[i, j] * weight[j, k] * weight[k, l], torsions,
+               dihedral_gradients(coords, i, j, k, l))
     return 0.5 * (hessian + hessian.T)
