@@ -54,8 +54,8 @@ def test_the_symmetric_hessian_equals_the_full_one_with_fewer_gradients(butadien
         hessian, coords, used = _mode_hessian(_gradients_at(engine), molecule, masses, record.coords_bohr)
         full = finite_difference_hessian(_gradient(engine), coords)
         # the two differ by the forward differences' O(h) error along the stiff totally symmetric
-        # modes, of the order of h / (2 r) of a curvature for springs of length r ~ 2 Bohr (2.5e-4 at
-        # h = 0.001), and the central differences' O(h^2) error, in two frames
+        # modes, of the order of h / (2 r) of a curvature for springs of length r ~ 2 Bohr (1.2e-4 at
+        # h = 0.0005), and the central differences' O(h^2) error, in two frames
         assert np.abs(hessian - full).max() < 2 * FORWARD_STEP_BOHR
         # vibrations above 100 cm-1 (the model's soft torsion and the rigid-body residue left out)
         ours, theirs = harmonic_frequencies(hessian, masses, coords)[0], harmonic_frequencies(full, masses, coords)[0]
@@ -124,7 +124,7 @@ def test_internal_directions_give_the_full_hessians_frequencies_with_gfn2_xtb():
     assert used < 2 * (3 * 19 - 6)
     ours, theirs = harmonic_frequencies(hessian, masses, coords)[0], harmonic_frequencies(full, masses, coords)[0]
     # soft modes: both central differences; stiff ones: the forward differences' anharmonic error,
-    # 2-3 cm-1 at h = 0.001 Bohr on C-H stretches near 3000 cm-1 (0.1 %)
+    # about 2 cm-1 at h = 0.0005 Bohr on C-H stretches near 3000 cm-1 (under 0.1 %)
     soft = theirs < 500
     assert theirs.min() > 0 and np.abs(ours - theirs)[soft].max() < 0.5
     assert np.abs(ours - theirs).max() < 1e-3 * theirs.max()
