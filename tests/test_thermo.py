@@ -7,7 +7,7 @@ import pytest
 from scipy.integrate import quad
 
 from torsionscan.profile import FourierSeries
-from torsionscan.thermo import region_populations
+from torsionscan.thermo import region_populations, region_populations_over
 from torsionscan.units import rt_kcal_mol
 
 
@@ -111,3 +111,19 @@ def test_energy_function_must_return_finite_values_per_angle():
         region_populations(lambda a: np.full_like(a, np.nan), 298.15)
     with pytest.raises(ValueError):
         region_populations(lambda a: 0.0, 298.15)
+
+
+def test_populations_over_temperatures_equal_one_at_a_time_with_one_evaluation_of_the_profile():
+    calls = []
+
+    def counted(angles):
+        calls.append(len(angles))
+        return gauche_profile(angles)
+
+    temperatures = (150.0, 298.15, 450.0)
+    together = region_populations_over(counted, temperatures, 45.0)
+    assert len(calls) == 1
+    for temperature, population in zip(temperatures, together):
+        assert population == region_populations(gauche_profile, temperature, 45.0)
+    with pytest.raises(ValueError, match="temperature"):
+        region_populations_over(gauche_profile, (298.15, -1.0))

@@ -12,7 +12,7 @@ import numpy as np
 
 from .profile import fit_profile, stationary_points
 from .records import Barrier, ProfileAnalysis, StationaryRecord
-from .thermo import region_populations
+from .thermo import region_populations_over
 from .units import HARTREE_KCAL_MOL, wrap_deg
 
 FIT_WIGGLE_KCAL_MOL = 0.001  # extrema pairs of the fit shallower than this are not refined
@@ -130,7 +130,7 @@ def analyse_profile(angles_deg, energies_hartree, symmetric, temperatures_k, win
     reference = min([grid_reference, *[m.energy_hartree for m in minima if m.converged]])
     shift = (grid_reference - reference) * HARTREE_KCAL_MOL
     fit = replace(fit, series=replace(fit.series, constant=fit.series.constant + shift))
-    populations = tuple(region_populations(fit.series.value, t, window_deg) for t in temperatures_k)
+    populations = region_populations_over(fit.series.value, temperatures_k, window_deg)
     return ProfileAnalysis(
         reference_energy_hartree=reference, fit=fit, minima=minima, maxima=maxima,
         barriers=tuple(barriers_between(list(minima), list(maxima))), populations=populations,

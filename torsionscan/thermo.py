@@ -64,7 +64,13 @@ def _composite_gauss_legendre(lower, upper, panels):
 
 
 def region_populations(energy_kcal_mol, temperature_k, scis_window_deg=30.0, samples=7200):
-    """Boltzmann fractions of the s-cis, s-trans and |phi| <= window regions at temperature_k (K).
+    """Boltzmann fractions of the s-cis, s-trans and |phi| <= window regions at temperature_k (K):
+    region_populations_over at one temperature."""
+    return region_populations_over(energy_kcal_mol, (temperature_k,), scis_window_deg, samples)[0]
+
+
+def region_populations_over(energy_kcal_mol, temperatures_k, scis_window_deg=30.0, samples=7200):
+    """RegionPopulations at each of temperatures_k (K), the profile evaluated once for all of them.
 
     energy_kcal_mol maps an array of angles in degrees (given in [-180, 180)) to kcal/mol,
     e.g. FourierSeries.value. The s-cis half is split at -90, -window, window and 90 deg and
@@ -72,8 +78,9 @@ def region_populations(energy_kcal_mol, temperature_k, scis_window_deg=30.0, sam
     boundaries are exact; the s-trans half uses the same rule shifted by 180 deg. About
     `samples` energy evaluations are made over the whole circle.
     """
-    if not (math.isfinite(temperature_k) and temperature_k > 0):
-        raise ValueError(f"temperature must be a finite number of kelvin > 0, got {temperature_k!r}")
+    for temperature_k in temperatures_k:
+        if not (math.isfinite(temperature_k) and temperature_k > 0):
+            raise ValueError(f"temperature must be a finite number of kelvin > 0, got {temperature_k!r}")
     if not 0 < scis_window_deg <= 90:
         raise ValueError(f"scis_window_deg must be in (0, 90], got {scis_window_deg!r}")
     if samples < _NODES_PER_PANEL:
@@ -91,18 +98,21 @@ def region_populations(energy_kcal_mol, temperature_k, scis_window_deg=30.0, sam
     energies = np.asarray(energy_kcal_mol(wrap_deg(nodes)), dtype=float)
     if energies.shape != nodes.shape or not np.all(np.isfinite(energies)):
         raise ValueError("energy_kcal_mol must return one finite energy per angle")
-    boltzmann = np.exp(-(energies - energies.min()) / rt_kcal_mol(temperature_k))
-    cis_boltzmann, trans_boltzmann = boltzmann[:len(cis_nodes)], boltzmann[len(cis_nodes):]
-    scis = float(weights @ cis_boltzmann)
-    trans = float(weights @ trans_boltzmann)
-    window = float(weights[in_window] @ cis_boltzmann[in_window])
-    total = scis + trans
-    delta_g = region_delta_g(temperature_k, scis, trans)
-    return RegionPopulations(
-        temperature_k=float(temperature_k),
-        s_cis=scis / total,
-        s_trans=trans / total,
-        scis_window=window / total,
-        scis_window_deg=float(scis_window_deg),
-        delta_g_kcal_mol=delta_g,
-    )
+    energies = energies - energies.min()
+    populations = []
+    for temperature_k in temperatures_k:
+        boltzmann = np.exp(-energies / rt_kcal_mol(temperature_k))
+        cis_boltzmann, trans_boltzmann = boltzmann[:len(cis_nodes)], boltzmann[len(cis_nodes):]
+        scis = float(weights @ cis_boltzmann)
+        trans = float(weights @ trans_boltzmann)
+        window = float(weights[in_window] @ cis_boltzmann[in_window])
+        total = scis + trans
+        populations.append(RegionPopulations(
+            temperature_k=float(temperature_k),
+            s_cis=scis / total,
+            s_trans=trans / total,
+            scis_window=window / total,
+            scis_window_deg=float(scis_window_deg),
+            delta_g_kcal_mol=region_delta_g(temperature_k, scis, trans),
+        ))
+    return tuple(populations)

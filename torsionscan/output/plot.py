@@ -14,7 +14,7 @@ import matplotlib.pyplot as plt  # noqa: E402
 import numpy as np  # noqa: E402
 
 from ..rotor import s_cis_over_temperatures  # noqa: E402
-from ..thermo import SCIS_LIMIT_DEG, region_populations  # noqa: E402
+from ..thermo import SCIS_LIMIT_DEG, region_populations_over  # noqa: E402
 from .report import SYMMETRIC_ROTOR_REASON, leading_answer, symmetric_rotor_shape  # noqa: E402
 
 _SCIS_SHADE = "#dfe9f5"
@@ -279,7 +279,7 @@ def populations_figure(result, bond):
     series = bond.profile.fit.series
     window = result.settings.scis_window_deg
     temperatures = np.linspace(*temperature_range, 41)
-    integrated = [region_populations(series.value, t, window) for t in temperatures]
+    integrated = region_populations_over(series.value, temperatures, window)
     ax.plot(temperatures, [100 * p.s_cis for p in integrated], "-", color="#1f5fa8", lw=1.8,
             label=f"s-cis (|φ| < {SCIS_LIMIT_DEG:g}°), classical integral over the profile")
     ax.plot(temperatures, [100 * p.scis_window for p in integrated], "--", color="#1f5fa8", lw=1.2,
