@@ -330,6 +330,35 @@ def test_the_header_and_bond_lines_carry_the_numbers_of_the_structure(model_resu
     assert f"0° = {bond.scis_meaning}, 180° = s-trans" in _bond_lines(text)[0]
 
 
+def test_figure_texts_lie_inside_the_canvas_and_the_legend_above_the_title(model_result, rotor_result):
+    filled = _filled(model_result)
+    bond = filled.bonds[0]
+    two_panels = dataclasses.replace(bond, points=tuple(dataclasses.replace(p, central_bond_order=1.2,
+                                                                            homo_lumo_gap_ev=3.0)
+                                                        for p in bond.points))
+    profiles = [profile_figure(filled, bond), profile_figure(filled, two_panels),
+                profile_figure(rotor_result, rotor_result.bonds[0])]
+    figures = profiles + [populations_figure(filled, bond), populations_figure(rotor_result, rotor_result.bonds[0])]
+    try:
+        for figure in figures:
+            figure.canvas.draw()
+            renderer = figure.canvas.get_renderer()
+            width, height = figure.get_size_inches()
+            drawn = figure.get_tightbbox(renderer)  # inches, everything drawn
+            assert drawn.x0 >= 0 and drawn.y0 >= 0 and drawn.x1 <= width and drawn.y1 <= height
+            top = figure.axes[0]
+            title = top.title.get_window_extent(renderer)
+            assert title.y0 >= top.get_window_extent(renderer).y1
+            if figure in profiles:  # their legend sits above the title
+                assert top.get_legend().get_window_extent(renderer).y0 >= title.y1
+        panel_title = figures[1].axes[1].title.get_window_extent(figures[1].canvas.get_renderer())
+        assert panel_title.y1 <= figures[1].axes[0].bbox.y0  # the conjugation panel's title below the profile
+        assert len(figures[1].axes) == 3  # with the gap's own axis on the right
+    finally:
+        for figure in figures:
+            plt.close(figure)
+
+
 def _legend(figure):
     return [t.get_text() for t in figure.axes[0].get_legend().get_texts()]
 

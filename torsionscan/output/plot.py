@@ -12,6 +12,7 @@ import matplotlib
 matplotlib.use("Agg")
 import matplotlib.pyplot as plt  # noqa: E402
 import numpy as np  # noqa: E402
+from matplotlib.transforms import ScaledTranslation  # noqa: E402
 
 from ..rotor import s_cis_over_temperatures  # noqa: E402
 from ..thermo import SCIS_LIMIT_DEG, region_populations_over  # noqa: E402
@@ -24,6 +25,31 @@ _RESCORED = "#d95f02"
 _REFINED = "#1b9e77"
 _ROTOR = "#7b3294"
 ROTOR_CURVE_TEMPERATURES = 21  # quantum-rotor points over the temperature range of the populations figure
+# fixed margins (inches) that hold these figures' tick and axis labels
+_LEFT_IN, _RIGHT_IN, _BOTTOM_IN = 0.75, 0.3, 0.6
+_SECOND_AXIS_IN = 0.7  # right margin beside a second y axis and its label
+_PANEL_GAP_IN = 0.4  # between the profile and the conjugation panel below it (its title)
+_LEGEND_GAP_PT, _EDGE_IN = 2.0, 0.06  # legend above the title; room left above the highest text
+
+
+def _lay_out(fig, axes, legend=None, right_in=_RIGHT_IN):
+    """Place the axes of a figure (one column, top to bottom) with fixed margins for tick and axis
+    labels and a top margin measured from the first axes' title and a legend set above it: the
+    job of tight_layout without its draw of the whole figure (as costly as saving the figure)."""
+    renderer = fig.canvas.get_renderer()
+    width, height = fig.get_size_inches()
+    to_points = 72.0 / fig.dpi
+    above_pt = axes[0].title.get_window_extent(renderer).height * to_points + matplotlib.rcParams["axes.titlepad"]
+    if legend is not None:
+        above_pt += _LEGEND_GAP_PT
+        legend.set_bbox_to_anchor((0.5, 1.0), transform=axes[0].transAxes + ScaledTranslation(
+            0.0, above_pt / 72.0, fig.dpi_scale_trans))
+        above_pt += legend.get_window_extent(renderer).height * to_points
+    top_in = above_pt / 72.0 + _EDGE_IN
+    gaps_in = _PANEL_GAP_IN * (len(axes) - 1)
+    mean_axes_in = (height - top_in - _BOTTOM_IN - gaps_in) / len(axes)
+    fig.subplots_adjust(left=_LEFT_IN / width, right=1.0 - right_in / width, bottom=_BOTTOM_IN / height,
+                        top=1.0 - top_in / height, hspace=_PANEL_GAP_IN / mean_axes_in)
 
 
 def _dihedral_text(result, bond):
@@ -95,8 +121,9 @@ def profile_figure(result, bond, title=None):
     else:
         ax.set_xlabel(axis_label)
     ax.set_title(title or f"{_dihedral_text(result, bond)} — relaxed {result.method} scan (an estimate)", fontsize=11)
-    ax.legend(fontsize=8.5, loc="lower center", bbox_to_anchor=(0.5, 1.04), ncol=2, frameon=False)
-    fig.tight_layout()
+    legend = ax.legend(fontsize=8.5, loc="lower center", ncol=2, frameon=False, borderaxespad=0.0)
+    second_axis = lower is not None and len(fig.axes) > 2  # the conjugation panel's HOMO-LUMO gap axis
+    _lay_out(fig, [ax] if lower is None else [ax, lower], legend, _SECOND_AXIS_IN if second_axis else _RIGHT_IN)
     return fig
 
 
@@ -272,9 +299,9 @@ def populations_figure(result, bond):
                  fontsize=9)
     if bond.symmetric_rotor:
         ax.set_ylim(0, 100)
-        ax.text(0.5, 0.5, f"symmetric rotor: {SYMMETRIC_ROTOR_REASON}", transform=ax.transAxes, ha="center",
+        ax.text(0.5, 0.5, f"symmetric rotor:\n{SYMMETRIC_ROTOR_REASON}", transform=ax.transAxes, ha="center",
                 va="center", fontsize=8, wrap=True)
-        fig.tight_layout()
+        _lay_out(fig, [ax])
         return fig
     series = bond.profile.fit.series
     window = result.settings.scis_window_deg
@@ -296,5 +323,5 @@ def populations_figure(result, bond):
         ax.plot(*zip(*rrho), "D", color="#b15928", ms=6, label="s-cis, all-harmonic free energies of the minima")
     ax.set_ylim(0, None)
     ax.legend(fontsize=8, frameon=False)
-    fig.tight_layout()
+    _lay_out(fig, [ax])
     return fig
