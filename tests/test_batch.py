@@ -251,6 +251,32 @@ def _stable(result):
 
 @xtb
 @pytest.mark.cluster
+@xtb
+def test_the_largest_compounds_are_handed_out_first(tmp_path):
+    listing = tmp_path / "sizes.csv"
+    listing.write_text("name,smiles\nacrolein,C=CC=O\nstyrene,C=Cc1ccccc1\nisoprene,C=CC(C)=C\n")
+
+    class Order:
+        def __init__(self):
+            self.names = []
+
+        def start(self, to_compute, already_done):
+            pass
+
+        def update(self, outcome):
+            self.names.append(outcome["name"])
+
+        def close(self):
+            pass
+
+    order = Order()
+    summary = run_batch(listing, tmp_path / "run", FAST_SETTINGS, BatchOptions(workers=1), progress=order)
+    assert summary.counts["done"] == 3
+    assert order.names == ["styrene", "isoprene", "acrolein"]  # 16, 13 and 8 atoms with hydrogens
+    with RunStore(tmp_path / "run") as store:
+        assert store.names() == ["acrolein", "styrene", "isoprene"]  # the table keeps the list's order
+
+
 def test_a_dask_local_cluster_gives_exactly_the_local_results(tmp_path):
     distributed = pytest.importorskip("distributed")
     listing = tmp_path / "few.csv"

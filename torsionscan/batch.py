@@ -565,6 +565,8 @@ def run_batch(list_path, out_dir, settings, options=BatchOptions(), progress=Non
         todo = store.names("pending") + (store.names("failed") if options.retry_failed else [])
         listed = {entry.name for entry in entries if not entry.problem}
         jobs = [make_job(store.compound(name), settings, options, out_dir) for name in todo if name in listed]
+        atoms = {entry.name: entry.atoms for entry in entries}
+        jobs.sort(key=lambda job: -atoms[job["name"]])  # largest first: no long compound left to finish alone
         workers = options.workers or usable_cores()
         session = store.start_session(command, None if options.cluster else workers, options.cluster)
         note = getattr(progress, "note", None) or log.warning

@@ -50,6 +50,7 @@ class CompoundEntry:
     None = from the structure. unpaired_electrons: number of unpaired electrons (0 = singlet).
     extra: other columns / data fields in file order, as strings. problem: non-empty if the
     entry cannot be scanned (what to fix). note: non-empty if something was fixed automatically.
+    atoms: atoms with hydrogens, 0 when the structure could not be read.
     """
 
     name: str
@@ -62,6 +63,7 @@ class CompoundEntry:
     extra: dict = field(default_factory=dict)
     problem: str = ""
     note: str = ""
+    atoms: int = 0
 
 
 def entry_input(entry):
@@ -455,9 +457,10 @@ def _finish(rows, base, allow_outside_files=False, allow_large=False):
             mol = Chem.MolFromMolBlock(row.molblock, removeHs=False)
         elif row.smiles:
             mol = _check_smiles(row, problems)
+        atoms = 0 if mol is None else _atom_count(mol)
         if mol is not None:
             try:
-                check_size(_atom_count(mol), allow_large)
+                check_size(atoms, allow_large)
             except InputError as error:
                 problems.append(f"{row.where}: {error}")
         unpaired = _parse_integer(row.unpaired, "unpaired_electrons", row, problems)
@@ -503,5 +506,6 @@ def _finish(rows, base, allow_outside_files=False, allow_large=False):
             extra=dict(row.extra),
             problem="; ".join(problems),
             note=note,
+            atoms=atoms,
         ))
     return entries
