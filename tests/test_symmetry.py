@@ -237,3 +237,60 @@ def test_a_structure_with_its_methyl_hydrogens_renumbered_and_turned_reuses_the_
     # along the modes of its own numbering (about 2e-3 of the largest element); a wrong reordering of the
     # methyl hydrogens would be off by a large share of it
     assert np.abs(ours - theirs).max() < 5e-3 * np.abs(theirs).max()
+
+
+def test_a_13c_label_removes_the_operations_that_would_exchange_it():
+    # a large molecule: the label moves the centre of mass too little to spoil the operations by itself
+    smiles = "c1ccccc1/C=C/C=C/c1ccccc1"
+    molecule = load_molecule(smiles)
+    central = next(b for b in find_conjugated_bonds(molecule)
+                   if not any(molecule.mol.GetAtomWithIdx(int(a)).GetIsAromatic() for a in b.atoms[1:3]))
+    engine = ModelEngine(molecule.mol, [(central.atoms, FourierSeries(0.0, (1.0, -1.5, 1.2), (0.0, 0.0, 0.0)))])
+    result = torsionscan.scan(smiles, engine=engine, bond=f"{central.atoms[1] + 1}-{central.atoms[2] + 1}",
+                              settings=torsionscan.ScanSettings(conformers=1, frequencies=False, step_deg=30.0))
+    trans = next(m for m in result.bonds[0].profile.minima if abs(m.angle_deg) > 170).coords_bohr
+    masses = np.array([a.GetMass() for a in molecule.mol.GetAtoms()])
+    labelled = masses.copy()
+    labelled[int(central.atoms[1])] = 13.00335  # one inner carbon of the diene made 13C
+    assert len(find_group(molecule.numbers, masses, trans)[2]) == 4  # C2h
+    assert len(find_group(molecule.numbers, labelled, trans)[2]) == 2  # only the molecular plane is left
+    hessian, coords, _ = _mode_hessian(_gradients_at(engine), molecule, labelled, trans)
+    # the energy does not depend on the masses: the full Hessian is the reference, as in the test above
+    assert np.abs(hessian - finite_difference_hessian(_gradient(engine), coords)).max() < 2 * FORWARD_STEP_BOHR
+
+
+def test_a_ring_flip_that_would_move_a_13c_label_computes_a_hessian_of_its_own():
+    from torsionscan.freeenergy import Hessians
+    from torsionscan.molecule import atom_orders
+
+    molecule = load_molecule("C=Cc1ccccc1")
+    atoms = find_conjugated_bonds(molecule)[0].atoms
+    engine = ModelEngine(molecule.mol, [(atoms, FourierSeries(0.0, (0.0, -2.0), (0.0, 0.0)))])  # planar minima
+    result = torsionscan.scan("C=Cc1ccccc1", engine=engine, settings=torsionscan.ScanSettings(conformers=1,
+                                                                                           frequencies=False))
+    first = min(result.bonds[0].profile.minima, key=lambda m: abs(m.angle_deg)).coords_bohr
+    orders, parents = atom_orders(molecule.mol)
+    flip = next(order for order in orders[1:])  # the ring turned over: ortho and meta atoms exchanged
+    full = flip.copy()
+    for heavy in np.flatnonzero(parents < 0):  # each atom's hydrogens go with it
+        full[parents == heavy] = np.flatnonzero(parents == flip[heavy])
+    flipped = first[full]  # the same structure, its ring atoms renumbered
+    natural = np.array([a.GetMass() for a in molecule.mol.GetAtoms()])
+    labelled = natural.copy()
+    labelled[int(np.flatnonzero(full != np.arange(len(full)))[0])] = 13.00335  # an exchanged carbon made 13C
+    assert molecule.numbers[labelled != natural][0] == 6
+    spent = {}
+    for name, masses in (("natural", natural), ("labelled", labelled)):
+        calls = []
+
+        def counted(reference, structures, calls=calls):
+            calls.append(len(structures))
+            return _gradients_at(engine)(reference, structures)
+
+        hessians = Hessians(counted, molecule.numbers, masses, (orders, parents))
+        hessians(first)
+        before = sum(calls)
+        hessians(flipped)
+        spent[name] = sum(calls) - before
+    assert spent["natural"] == 0  # the flipped ring reuses the Hessian
+    assert spent["labelled"] > 0  # the label sits on the other side of the ring there: another structure

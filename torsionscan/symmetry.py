@@ -5,8 +5,8 @@ The operations looked for are the seven that are diagonal in the principal-axis 
 structure (reflections through the three principal planes, two-fold rotations about the three
 axes, inversion through the centre of mass): every operation of the point groups a planar or
 twisted conjugated molecule has at its stationary points (Cs, C2, C2v, C2h, D2h) is one of
-them. An operation counts when it maps every atom onto an atom of the same element within
-TOLERANCE_BOHR; the structure is then made exactly symmetric by averaging over the group.
+them. An operation counts when it maps every atom onto an atom of the same element and mass
+within TOLERANCE_BOHR; the structure is then made exactly symmetric by averaging over the group.
 
 The Hessian is built by finite differences along the normal modes of a model Hessian, adapted
 to the group's (one-dimensional) representations, in the space of the 3N-6 internal displacements
@@ -44,12 +44,12 @@ def principal_frame(masses, coords_bohr):
     return centre, axes
 
 
-def _permutation(numbers, frame, signs):
+def _permutation(numbers, masses, frame, signs):
     """Atom permutation of the operation diag(signs) on frame coordinates, and its worst mismatch;
-    None if some atom has no partner."""
+    None if some atom has no partner (one of the same element and mass: an isotope breaks a symmetry)."""
     image = frame * signs
     distances = np.linalg.norm(image[:, None, :] - frame[None, :, :], axis=-1)
-    distances[numbers[:, None] != numbers[None, :]] = np.inf
+    distances[(numbers[:, None] != numbers[None, :]) | ~np.isclose(masses[:, None], masses[None, :])] = np.inf
     permutation = distances.argmin(axis=1)
     if len(set(permutation.tolist())) != len(permutation):
         return None, np.inf
@@ -59,12 +59,12 @@ def _permutation(numbers, frame, signs):
 def find_group(numbers, masses, coords_bohr, tolerance=TOLERANCE_BOHR):
     """(centre, Q, operations, symmetrised frame coordinates): operations are (signs, permutation)
     pairs forming a group (identity first); the frame coordinates are exactly invariant under them."""
-    numbers = np.asarray(numbers)
+    numbers, masses = np.asarray(numbers), np.asarray(masses, dtype=float)
     centre, axes = principal_frame(masses, coords_bohr)
     frame = (coords_bohr - centre) @ axes
     found = {}
     for signs in _CANDIDATES:
-        permutation, mismatch = _permutation(numbers, frame, signs)
+        permutation, mismatch = _permutation(numbers, masses, frame, signs)
         if permutation is not None and mismatch <= tolerance:
             found[tuple(signs)] = permutation
     # a group: keep only operations whose products with the others were found too
