@@ -125,5 +125,6 @@ def test_populations_over_temperatures_equal_one_at_a_time_with_one_evaluation_o
     assert len(calls) == 1
     for temperature, population in zip(temperatures, together):
         assert population == region_populations(gauche_profile, temperature, 45.0)
+    assert region_populations_over(gauche_profile, iter(temperatures), 45.0) == together
     with pytest.raises(ValueError, match="temperature"):
         region_populations_over(gauche_profile, (298.15, -1.0))

@@ -78,6 +78,7 @@ def region_populations_over(energy_kcal_mol, temperatures_k, scis_window_deg=30.
     boundaries are exact; the s-trans half uses the same rule shifted by 180 deg. About
     `samples` energy evaluations are made over the whole circle.
     """
+    temperatures_k = tuple(temperatures_k)  # an iterator is read twice below
     for temperature_k in temperatures_k:
         if not (math.isfinite(temperature_k) and temperature_k > 0):
             raise ValueError(f"temperature must be a finite number of kelvin > 0, got {temperature_k!r}")
