@@ -250,8 +250,6 @@ def _stable(result):
 
 
 @xtb
-@pytest.mark.cluster
-@xtb
 def test_the_largest_compounds_are_handed_out_first(tmp_path):
     listing = tmp_path / "sizes.csv"
     listing.write_text("name,smiles\nacrolein,C=CC=O\nstyrene,C=Cc1ccccc1\nisoprene,C=CC(C)=C\n")
@@ -277,6 +275,8 @@ def test_the_largest_compounds_are_handed_out_first(tmp_path):
         assert store.names() == ["acrolein", "styrene", "isoprene"]  # the table keeps the list's order
 
 
+@xtb
+@pytest.mark.cluster
 def test_a_dask_local_cluster_gives_exactly_the_local_results(tmp_path):
     distributed = pytest.importorskip("distributed")
     listing = tmp_path / "few.csv"
