@@ -3,6 +3,7 @@ central-difference Hessian within the finite-difference error, at a fraction of 
 
 import numpy as np
 import pytest
+from rdkit import Chem
 
 import torsionscan
 from torsionscan.engines.model import ModelEngine
@@ -259,7 +260,7 @@ def test_a_13c_label_removes_the_operations_that_would_exchange_it():
     assert np.abs(hessian - finite_difference_hessian(_gradient(engine), coords)).max() < 2 * FORWARD_STEP_BOHR
 
 
-def test_a_ring_flip_that_would_move_a_13c_label_computes_a_hessian_of_its_own():
+def test_a_ring_flip_or_hydrogen_swap_that_would_move_an_isotope_label_computes_a_hessian_of_its_own():
     from torsionscan.freeenergy import Hessians
     from torsionscan.molecule import atom_orders
 
@@ -274,23 +275,28 @@ def test_a_ring_flip_that_would_move_a_13c_label_computes_a_hessian_of_its_own()
     full = flip.copy()
     for heavy in np.flatnonzero(parents < 0):  # each atom's hydrogens go with it
         full[parents == heavy] = np.flatnonzero(parents == flip[heavy])
-    flipped = first[full]  # the same structure, its ring atoms renumbered
-    natural = np.array([a.GetMass() for a in molecule.mol.GetAtoms()])
-    labelled = natural.copy()
-    labelled[int(np.flatnonzero(full != np.arange(len(full)))[0])] = 13.00335  # an exchanged carbon made 13C
-    assert molecule.numbers[labelled != natural][0] == 6
-    spent = {}
-    for name, masses in (("natural", natural), ("labelled", labelled)):
-        calls = []
+    terminal = np.flatnonzero(parents == 0)  # the two hydrogens of the vinyl CH2
+    swap = np.arange(len(full))
+    swap[terminal] = terminal[::-1]
+    # (renumbered structure, its atom that gets the label): the same structure for unlabelled atoms
+    cases = [(first[full], int(np.flatnonzero(full != np.arange(len(full)))[0]), 13),  # an exchanged carbon
+             (first[swap], int(terminal[0]), 2)]  # one of the two CH2 hydrogens
+    for second, index, isotope in cases:
+        labelled = Chem.Mol(molecule.mol)
+        labelled.GetAtomWithIdx(index).SetIsotope(isotope)
+        spent = {}
+        for name, mol in (("natural", molecule.mol), ("labelled", labelled)):
+            calls = []
 
-        def counted(reference, structures, calls=calls):
-            calls.append(len(structures))
-            return _gradients_at(engine)(reference, structures)
+            def counted(reference, structures, calls=calls):
+                calls.append(len(structures))
+                return _gradients_at(engine)(reference, structures)
 
-        hessians = Hessians(counted, molecule.numbers, masses, (orders, parents))
-        hessians(first)
-        before = sum(calls)
-        hessians(flipped)
-        spent[name] = sum(calls) - before
-    assert spent["natural"] == 0  # the flipped ring reuses the Hessian
-    assert spent["labelled"] > 0  # the label sits on the other side of the ring there: another structure
+            masses = np.array([a.GetMass() for a in mol.GetAtoms()])
+            hessians = Hessians(counted, molecule.numbers, masses, atom_orders(mol))
+            hessians(first)
+            before = sum(calls)
+            hessians(second)
+            spent[name] = sum(calls) - before
+        assert spent["natural"] == 0  # the renumbered structure reuses the Hessian
+        assert spent["labelled"] > 0  # the label sits elsewhere there: another structure

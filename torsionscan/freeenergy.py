@@ -74,9 +74,9 @@ class Hessians:
     onto it and with equivalent atoms exchanged, reuses its Hessian, reordered and turned with it
     (the planar s-cis structure and a stationary point at 0 deg; the lowest minimum reached from
     the scans of two bonds, each in its own frame; the two planar minima of a phenyl ring's bond,
-    one the other flipped; not when that would exchange atoms of different mass, such as a 13C label);
-    each new one is built along the symmetry-adapted modes of the Lindh
-    model Hessian (symmetry.symmetric_hessian, zero along translations and rotations)."""
+    one the other flipped; never moving an isotope label: molecule.atom_orders); each new one is
+    built along the symmetry-adapted modes of the Lindh model Hessian (symmetry.symmetric_hessian,
+    zero along translations and rotations)."""
 
     def __init__(self, gradients_at, numbers, masses_amu, atom_orders=None):
         """gradients_at(reference, structures): gradients (Hartree/Bohr) at displaced structures (Bohr);
@@ -92,7 +92,7 @@ class Hessians:
         coords_bohr = np.asarray(coords_bohr, dtype=float)
         for given, used, hessian in self.done:
             order, rotation, distance = geometry.matched_superposition(given, coords_bohr, self.orders, self.parents)
-            if distance < SAME_STRUCTURE_BOHR and np.allclose(self.masses[order], self.masses):  # no isotope moved
+            if distance < SAME_STRUCTURE_BOHR:
                 components = (3 * order[:, None] + np.arange(3)).ravel()
                 turn = np.kron(np.eye(len(coords_bohr)), rotation.T)  # each atom's displacement turned
                 reordered = hessian[np.ix_(components, components)]

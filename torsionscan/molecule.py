@@ -562,13 +562,15 @@ def atom_orders(mol, limit=MAX_ATOM_ORDERS):
     map its graph onto itself (identity first; at most limit), each an (N,) array with -1 at the
     hydrogens, and each atom's heavy neighbour for a hydrogen (-1 for a heavy atom). With them
     geometry.matched_superposition finds one structure in another with equivalent atoms
-    exchanged: a phenyl ring flipped, a methyl group turned by a third of a turn."""
+    exchanged: a phenyl ring flipped, a methyl group turned by a third of a turn. Atoms of
+    different mass are not equivalent: RDKit's self-match keeps a 13C on itself, and a labelled
+    hydrogen (2H, 3H) counts as a heavy atom, so it is never swapped with a 1H either."""
     mol = getattr(mol, "mol", mol)
-    heavy = [atom.GetIdx() for atom in mol.GetAtoms() if atom.GetAtomicNum() > 1]
+    heavy = [atom.GetIdx() for atom in mol.GetAtoms() if atom.GetAtomicNum() > 1 or atom.GetIsotope() > 1]
     parents = np.full(mol.GetNumAtoms(), -1)
     for atom in mol.GetAtoms():
         neighbours = [n.GetIdx() for n in atom.GetNeighbors()]
-        if atom.GetAtomicNum() == 1 and len(neighbours) == 1 and neighbours[0] in heavy:
+        if atom.GetIdx() not in heavy and len(neighbours) == 1 and neighbours[0] in heavy:
             parents[atom.GetIdx()] = neighbours[0]
     skeleton = Chem.RWMol(mol)
     for index in sorted(np.flatnonzero(parents >= 0), reverse=True):
