@@ -57,6 +57,37 @@ def test_warm_start_gives_the_same_energy_as_a_cold_start(acrolein):
     assert warm == pytest.approx(cold, abs=1e-7)
 
 
+@pytest.mark.parametrize("backend", available_backends())
+def test_loose_relaxations_get_gradients_precise_to_a_small_share_of_their_threshold(acrolein, backend):
+    molecule, coords = acrolein
+    displaced = coords + np.random.default_rng(3).normal(scale=0.02, size=coords.shape)
+    tight_engine, loose_engine = (make_engine(molecule.numbers, backend=backend) for _ in range(2))
+    loose_engine.resolve_gradients_to(4.5e-4)  # a scan point's convergence threshold (Hartree/Bohr)
+    tight = [tight_engine.energy_and_gradient(c) for c in (coords, displaced)]
+    loose = [loose_engine.energy_and_gradient(c) for c in (coords, displaced)]
+    errors = [np.abs(t[1] - l[1]).max() for t, l in zip(tight, loose)]
+    # the setting reaches the library (the SCF really is looser), and the gradient error stays
+    # within 1 % of the threshold the relaxation tests
+    assert 1e-9 < max(errors) < 4.5e-6
+    assert max(abs(t[0] - l[0]) for t, l in zip(tight, loose)) < 1e-7
+    loose_engine.resolve_gradients_to(None)  # back to the precision finite differences need
+    again = loose_engine.energy_and_gradient(displaced)[1]
+    assert np.abs(again - tight[1][1]).max() < 2e-7
+
+
+def test_a_relaxation_asks_for_the_precision_of_its_threshold_and_gives_it_back(acrolein):
+    from torsionscan.optimize import Convergence
+    from torsionscan.relax import Relaxer
+
+    molecule, coords = acrolein
+    engine = make_engine(molecule.numbers)
+    asked, resolve = [], engine.resolve_gradients_to
+    engine.resolve_gradients_to = lambda tolerance: (asked.append((tolerance, engine.evaluations)), resolve(tolerance))
+    Relaxer(engine, molecule.numbers).relax(coords, Convergence(max_gradient=4.5e-4, rms_gradient=3.0e-4))
+    assert asked == [(4.5e-4, 0), (None, engine.evaluations)] and engine.evaluations > 1
+    assert engine.accuracy == engine.TIGHT_ACCURACY
+
+
 def test_gfn1_is_selectable_and_differs_from_gfn2(acrolein):
     molecule, coords = acrolein
     gfn1 = make_engine(molecule.numbers, method="GFN1-xTB").energy_and_gradient(coords)[0]

@@ -66,10 +66,17 @@ class Relaxer:
         """Minimise from coords (N, 3) under the given constraints (optimize.Constraint objects)."""
         if hessian is None:
             hessian = lindh_hessian(self.numbers, coords_bohr)
-        result = minimize(
-            self._objective, np.ravel(coords_bohr), hessian, constraints=list(constraints),
-            invariant_directions=self._rigid, convergence=convergence,
-        )
+        resolve = getattr(self.engine, "resolve_gradients_to", None)  # optional: engines.Engine
+        if resolve is not None:
+            resolve(convergence.max_gradient)
+        try:
+            result = minimize(
+                self._objective, np.ravel(coords_bohr), hessian, constraints=list(constraints),
+                invariant_directions=self._rigid, convergence=convergence,
+            )
+        finally:
+            if resolve is not None:
+                resolve(None)  # gradients asked for outside a relaxation are precise
         if self.bonds is not None:
             changes = bonding_changes(self.numbers, self.bonds, result.x.reshape(-1, 3))
             if changes:

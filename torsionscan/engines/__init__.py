@@ -46,7 +46,9 @@ class Engine(Protocol):
     shown to users; capabilities: a set of the names above; max_atomic_number: element coverage;
     caution: one paragraph on what its numbers are worth; evaluations: gradients computed so far.
     An engine with CONJUGATION also offers conjugation(coords_bohr, j, k) -> (Wiberg bond order of
-    j-k, HOMO-LUMO gap in eV).
+    j-k, HOMO-LUMO gap in eV). An engine may offer resolve_gradients_to(tolerance): the gradients
+    that follow need only the precision of a relaxation converged to tolerance (Hartree/Bohr;
+    None: full precision), which relaxations set and reset.
     """
 
     name: str

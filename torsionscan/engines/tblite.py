@@ -12,17 +12,20 @@ class TbliteEngine(WarmStartEngine):
     name = "tblite"
     library_error = TBLiteRuntimeError
 
-    def _new_calculator(self, coords_bohr):
+    def _new_calculator(self, coords_bohr, accuracy):
         calculator = Calculator(
             self.method, self.numbers, coords_bohr,
             charge=self.charge, uhf=self.unpaired_electrons,
         )
         calculator.set("verbosity", 0)
-        calculator.set("accuracy", self.accuracy)
+        self._set_accuracy(calculator, accuracy)
         if self.solvent:
             model, name = self.solvent
             calculator.add(f"{model}-solvation", name)
         return calculator
+
+    def _set_accuracy(self, calculator, accuracy):
+        calculator.set("accuracy", accuracy)
 
     def _move(self, calculator, coords_bohr):
         calculator.update(positions=coords_bohr)

@@ -15,16 +15,19 @@ class XtbPythonEngine(WarmStartEngine):
     name = "xtb-python"
     library_error = XTBException
 
-    def _new_calculator(self, coords_bohr):
+    def _new_calculator(self, coords_bohr, accuracy):
         calculator = Calculator(
             _PARAMS[self.method], self.numbers, coords_bohr,
             charge=self.charge, uhf=self.unpaired_electrons,
         )
         calculator.set_verbosity(VERBOSITY_MUTED)
-        calculator.set_accuracy(self.accuracy)
+        self._set_accuracy(calculator, accuracy)
         if self.solvent:
             calculator.set_solvent(getattr(Solvent, self.solvent[1]))  # GBSA, the only model offered
         return calculator
+
+    def _set_accuracy(self, calculator, accuracy):
+        calculator.set_accuracy(accuracy)
 
     def _move(self, calculator, coords_bohr):
         calculator.update(coords_bohr)
