@@ -180,7 +180,10 @@ def test_rescored_column_overlay_and_lines(model_result, tmp_path):
     for row, point in zip(rows, bond.points):
         assert float(row["energy_rescored_rel_kcal_mol"]) == pytest.approx(expected[id(point)], abs=5e-6)
     assert read_summary_file(tmp_path / "summary.json").to_dict() == result.to_dict()
-    assert set(render_figures(result)[bond.label]) == {"profile.png", "profile.svg", "populations.png"}
+    figures = render_figures(result)[bond.label]
+    assert set(figures) == {"profile.png", "profile.svg", "populations.png"}
+    # the vector figure keeps its words as text (editable, searchable), not as glyph outlines
+    assert "populations:" in figures["profile.svg"].decode() and "sans-serif" in figures["profile.svg"].decode()
     text = format_summary(result, tmp_path)
     assert "re-scored at test-level" in text and "WARNING: profiles differ" in text
     assert f"difference to {result.method}" in text
