@@ -97,3 +97,24 @@ def test_rigid_body_directions_are_orthonormal_and_leave_dihedrals_unchanged(pen
     np.testing.assert_allclose(modes @ modes.T, np.eye(6), atol=1e-10)
     grad = geometry.dihedral_gradient(coords, 1, 2, 3, 4).ravel()
     np.testing.assert_allclose(modes @ grad, 0.0, atol=1e-10)
+
+
+def test_distinct_structures_sees_one_structure_turned_mirrored_or_relabelled(pentadiene_coords):
+    from torsionscan.molecule import atom_orders
+
+    mol, coords = pentadiene_coords
+    orders, parents = atom_orders(mol)
+    turned = coords @ geometry.rotation_matrix([1.0, 2.0, 3.0], 0.7).T + 5.0
+    mirrored = coords * [1.0, 1.0, -1.0]
+    methyl = [a.GetIdx() for a in mol.GetAtomWithIdx(0).GetNeighbors() if a.GetAtomicNum() == 1]
+    relabelled = coords.copy()
+    relabelled[methyl] = coords[methyl[1:] + methyl[:1]]  # the methyl hydrogens renumbered in turn
+    # the other structure: the terminal vinyl group turned by 90 degrees about the central single bond
+    moving = [a for a in range(mol.GetNumAtoms()) if a not in (0, 1, 2) and a not in methyl
+              and not (mol.GetAtomWithIdx(a).GetAtomicNum() == 1 and mol.GetAtomWithIdx(a).GetNeighbors()[0].GetIdx() in (1, 2))]
+    other, _ = geometry.rotate_about_bond(coords, 2, 3, moving, np.pi / 2)
+    assert geometry.distinct_structures([coords, turned, mirrored, relabelled, other], orders, parents, 0.01) == [0, 4]
+    # a structure 0.05 apart is kept at a tolerance of 0.01
+    nudged = coords.copy()
+    nudged[0, 0] += 0.05
+    assert geometry.distinct_structures([coords, nudged], orders, parents, 0.01) == [0, 1]

@@ -143,6 +143,17 @@ def matched_superposition(moved, fixed, orders, parents):
     return best
 
 
+def distinct_structures(structures, orders, parents, tolerance_bohr):
+    """Indices of the structures ((N, 3) Bohr each) that no earlier one matches: largest atom
+    distance of matched_superposition (equivalent atoms exchanged, mirror images allowed) at least
+    tolerance_bohr from every structure kept before."""
+    kept = []
+    for index, coords in enumerate(structures):
+        if all(matched_superposition(coords, structures[k], orders, parents)[2] >= tolerance_bohr for k in kept):
+            kept.append(index)
+    return kept
+
+
 def rigid_body_directions(coords):
     """Orthonormal rows spanning the infinitesimal translations and rotations, shape (<=6, 3N)."""
     n = len(coords)
