@@ -137,12 +137,15 @@ class BondScanner:
                 self.record_visit(index, point, hessian)
 
     def chosen_points(self):
-        """Best visit per grid point (converged first, then lowest energy), plus hysteresis records."""
+        """Best visit per grid point (converged first, then lowest energy; of failed ones, one whose
+        bonding changed), plus hysteresis records."""
         chosen, hysteresis = {}, []
         for index, visits in sorted(self.visits.items()):
             ok = [v for v in visits if v[0].converged]
             pool = ok or [v for v in visits if np.isfinite(v[0].energy_hartree)] or visits
-            chosen[index] = min(pool, key=lambda v: v[0].energy_hartree if np.isfinite(v[0].energy_hartree) else np.inf)
+            # among failed visits only, one whose structure fell apart says the most
+            chosen[index] = min(pool, key=lambda v: (v[0].energy_hartree if np.isfinite(v[0].energy_hartree) else np.inf,
+                                                     not v[0].failure.startswith(BONDING_CHANGED)))
             if len(ok) > 1:
                 energies = [v[0].energy_hartree for v in ok]
                 spread = (max(energies) - min(energies)) * HARTREE_KCAL_MOL
@@ -182,7 +185,9 @@ class BondScanner:
         gaps = [((b - a) % 360.0, a) for a, b in zip(angles, angles[1:] + angles[:1])]
         widest, after = max(gaps)
         if widest > MAX_GAP_DEG:
-            failed = next((p for p, _ in circle if in_arc(p.angle_deg, after, after + widest) and p.failure), None)
+            inside = [p for p, _ in circle if in_arc(p.angle_deg, after, after + widest) and p.failure]
+            # a structure that fell apart there explains the others best (their constraints may fail first)
+            failed = next((p for p in inside if p.failure.startswith(BONDING_CHANGED)), inside[0] if inside else None)
             raise CalculationError(
                 f"dihedral {self.bond.label}: no converged point from {display_angle(after):.0f} to "
                 f"{display_angle(after + widest):.0f} deg, so the profile cannot be fitted there"
