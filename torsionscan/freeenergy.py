@@ -30,14 +30,17 @@ from .rotor import (
 from .modelhessian import lindh_hessian
 from .thermo import is_s_cis
 from .rrho import conformer_populations, harmonic_frequencies, internal_basis, rrho_thermo
-from .symmetry import mass_weighted_products, symmetric_hessian
+from .symmetry import TOLERANCE_BOHR, mass_weighted_products, symmetric_hessian
 from .units import HARTREE_KCAL_MOL, rt_kcal_mol
 
 log = logging.getLogger(__name__)
 
 FD_STEP_BOHR = 0.005
 PLANAR_DEG = 0.05  # a stationary point this close to 0 deg is the planar s-cis structure
-SAME_STRUCTURE_BOHR = 0.01  # largest atom displacement between two structures that share one Hessian
+# largest atom displacement between two structures that share one Hessian: the tolerance within
+# which a structure already counts as its symmetric image (the planar minima at 0 and 180 deg of a
+# phenyl-vinyl bond, one left 0.37 deg off planar by its flat optimisation, are 0.015 Bohr apart)
+SAME_STRUCTURE_BOHR = TOLERANCE_BOHR
 QUASI_HARMONIC_CUTOFF_CM1 = 100.0
 
 
