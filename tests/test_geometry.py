@@ -100,7 +100,7 @@ def test_rigid_body_directions_are_orthonormal_and_leave_dihedrals_unchanged(pen
 
 
 def test_distinct_structures_sees_one_structure_turned_mirrored_or_relabelled(pentadiene_coords):
-    from torsionscan.molecule import atom_orders
+    from torsionscan.molecule import atom_orders, side_atoms
 
     mol, coords = pentadiene_coords
     orders, parents = atom_orders(mol)
@@ -110,9 +110,7 @@ def test_distinct_structures_sees_one_structure_turned_mirrored_or_relabelled(pe
     relabelled = coords.copy()
     relabelled[methyl] = coords[methyl[1:] + methyl[:1]]  # the methyl hydrogens renumbered in turn
     # the other structure: the terminal vinyl group turned by 90 degrees about the central single bond
-    moving = [a for a in range(mol.GetNumAtoms()) if a not in (0, 1, 2) and a not in methyl
-              and not (mol.GetAtomWithIdx(a).GetAtomicNum() == 1 and mol.GetAtomWithIdx(a).GetNeighbors()[0].GetIdx() in (1, 2))]
-    other, _ = geometry.rotate_about_bond(coords, 2, 3, moving, np.pi / 2)
+    other, _ = geometry.rotate_about_bond(coords, 2, 3, side_atoms(mol, 2, 3), np.pi / 2)
     assert geometry.distinct_structures([coords, turned, mirrored, relabelled, other], orders, parents, 0.01) == [0, 4]
     # a structure 0.05 apart is kept at a tolerance of 0.01
     nudged = coords.copy()

@@ -60,6 +60,11 @@ def relax_start(molecule, workers, settings, orders):
     return best.x.reshape(-1, 3), best.energy, best.hessian, workers.evaluations - before
 
 
+def _fell_apart(point):
+    """Whether a ScanPoint failed because its bonding changed during relaxation."""
+    return point.failure.startswith(BONDING_CHANGED)
+
+
 def _failed_point(target_deg, coords, evaluations, reason):
     return ScanPoint(
         angle_deg=float(target_deg), measured_angle_deg=float("nan"), energy_hartree=float("nan"),
@@ -145,7 +150,7 @@ class BondScanner:
             pool = ok or [v for v in visits if np.isfinite(v[0].energy_hartree)] or visits
             # among failed visits only, one whose structure fell apart says the most
             chosen[index] = min(pool, key=lambda v: (v[0].energy_hartree if np.isfinite(v[0].energy_hartree) else np.inf,
-                                                     not v[0].failure.startswith(BONDING_CHANGED)))
+                                                     not _fell_apart(v[0])))
             if len(ok) > 1:
                 energies = [v[0].energy_hartree for v in ok]
                 spread = (max(energies) - min(energies)) * HARTREE_KCAL_MOL
@@ -171,7 +176,7 @@ class BondScanner:
         the profile fitted and its minima and maxima refined with this scanner's engine."""
         chosen, hysteresis = self.chosen_points()
         circle = self.full_circle(chosen)
-        changed = [p for p, _ in circle if p.failure.startswith(BONDING_CHANGED)]
+        changed = [p for p, _ in circle if _fell_apart(p)]
         if 2 * len(changed) > len(circle):
             raise CalculationError(
                 f"dihedral {self.bond.label}: {changed[0].failure[len(BONDING_CHANGED) + 2:]} at "
@@ -187,7 +192,7 @@ class BondScanner:
         if widest > MAX_GAP_DEG:
             inside = [p for p, _ in circle if in_arc(p.angle_deg, after, after + widest) and p.failure]
             # a structure that fell apart there explains the others best (their constraints may fail first)
-            failed = next((p for p in inside if p.failure.startswith(BONDING_CHANGED)), inside[0] if inside else None)
+            failed = next((p for p in inside if _fell_apart(p)), inside[0] if inside else None)
             raise CalculationError(
                 f"dihedral {self.bond.label}: no converged point from {display_angle(after):.0f} to "
                 f"{display_angle(after + widest):.0f} deg, so the profile cannot be fitted there"
