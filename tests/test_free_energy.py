@@ -67,6 +67,24 @@ def test_butadiene_stationary_points_have_the_right_nature(butadiene_scan):
     assert s_trans.frequencies_cm1[0] == pytest.approx(163.0, abs=30.0)
 
 
+def test_a_flat_planar_region_counts_its_soft_torsion_mode_and_passes_the_check():
+    # 1-phenylbutadiene's diene bond: the planar s-cis point and the s-cis wells on either side lie
+    # within 0.01 kcal/mol (GFN2-xTB), one flat region; the sign of its torsion mode at the planar
+    # structure is below what a harmonic analysis resolves, so it never fails the check, and its
+    # magnitude enters G - E like any other soft mode
+    from torsionscan.quality import STATIONARY_CHECK
+    from torsionscan.rrho import rrho_thermo
+
+    result = torsionscan.scan("C=C/C=C/c1ccccc1", name="phenyl-diene", bond="2-3")
+    bond = result.bonds[0]
+    (flat,) = [m for m in bond.profile.minima if m.flat_region]
+    assert abs(flat.angle_deg) < 0.05 and flat.imaginary_count <= 1 and STATIONARY_CHECK not in bond.flags
+    masses = [atom.GetMass() for atom in load_molecule(result.smiles).mol.GetAtoms()]
+    expected = rrho_thermo(np.abs(flat.frequencies_cm1), masses, flat.coords_bohr, 298.15,
+                           quasi_harmonic_cutoff_cm1=100.0).gibbs_correction_kcal_mol
+    assert flat.gibbs_corrections_kcal_mol[0] == pytest.approx(expected, abs=1e-6)  # the symmetrised structure
+
+
 def test_free_energy_populations_and_readiness_of_butadiene(butadiene_scan):
     profile = butadiene_scan.bonds[0].profile
     for p in profile.rrho_populations:

@@ -1,10 +1,15 @@
-"""Scan bookkeeping: sweep coverage of the scan coordinate, merging of flat stationary pairs, the time limit."""
+"""Scan bookkeeping: sweep coverage of the scan coordinate, merging of flat stationary pairs and
+the verdict on them, the time limit."""
+
+from dataclasses import replace
+from types import SimpleNamespace
 
 import numpy as np
 import pytest
 
 from torsionscan.records import StationaryRecord
 from torsionscan.analysis import merge_flat_extrema
+from torsionscan.quality import wrong_stationary_points
 from torsionscan.coordinate import ScanCoordinate
 from torsionscan.units import HARTREE_KCAL_MOL
 
@@ -58,9 +63,25 @@ def test_flat_pair_at_the_mirror_plane_merges_into_one_planar_point():
         _record("maximum", 0.0, 2.004), _record("minimum", 12.0, 2.000), _record("maximum", 95.0, 5.4),
     ]
     merged = merge_flat_extrema(records, symmetric=True, flat_hartree=0.01 / HARTREE_KCAL_MOL)
-    assert sorted((r.angle_deg, r.kind) for r in merged) == [
-        (-95.0, "maximum"), (0.0, "minimum"), (95.0, "maximum"), (180.0, "minimum")
+    assert sorted((r.angle_deg, r.kind, r.flat_region) for r in merged) == [
+        (-95.0, "maximum", False), (0.0, "minimum", True), (95.0, "maximum", False), (180.0, "minimum", False)
     ]
+
+
+def _checked(kind, imaginary, along, flat=False):
+    return replace(_record(kind, 0.0, 0.0), imaginary_count=imaginary, imaginary_along_torsion=along, flat_region=flat)
+
+
+def test_a_flat_region_may_turn_either_way_but_nothing_else_may_be_imaginary():
+    def wrong(*points):
+        analysis = SimpleNamespace(minima=tuple(p for p in points if p.kind == "minimum"),
+                                   maxima=tuple(p for p in points if p.kind == "maximum"))
+        return wrong_stationary_points(analysis)
+
+    assert wrong(_checked("minimum", 1, True)) and not wrong(_checked("minimum", 1, True, flat=True))
+    assert not wrong(_checked("minimum", 0, None, flat=True), _checked("maximum", 0, None, flat=True))
+    assert wrong(_checked("minimum", 1, False, flat=True)) and wrong(_checked("minimum", 2, True, flat=True))
+    assert wrong(_checked("maximum", 0, None)) and not wrong(_checked("maximum", 1, True))
 
 
 def test_real_shallow_wells_are_kept():

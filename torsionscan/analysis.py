@@ -50,7 +50,7 @@ def merge_flat_extrema(records, symmetric, flat_hartree):
 
     records alternate in kind around the circle. On a symmetric profile a flat pair that
     touches a mirror plane (0 or 180 deg) is merged together with its mirror image, leaving
-    one stationary point on the plane, so the result stays mirror symmetric.
+    one stationary point on the plane (flat_region), so the result stays mirror symmetric.
     """
     records = sorted(records, key=lambda r: wrap_deg(r.angle_deg))
     while len(records) > 2:
@@ -72,7 +72,8 @@ def merge_flat_extrema(records, symmetric, flat_hartree):
             mirror = (2 * centre - other) % n  # the neighbour on the far side of the plane
             kept = records[centre]
             kind = records[other].kind
-            merged = replace(kept, kind=kind, refinement=f"{kept.refinement} (flat {kind} region merged)")
+            merged = replace(kept, kind=kind, refinement=f"{kept.refinement} (flat {kind} region merged)",
+                             flat_region=True)
             drop = {other, mirror}
             records = [merged if j == centre else r for j, r in enumerate(records) if j not in drop]
         else:

@@ -316,8 +316,12 @@ def _vibration_lines(analysis, symmetric_rotor=False):
     checked = [m for m in analysis.minima + analysis.maxima if m.imaginary_count is not None]
     if checked:
         wrong = wrong_stationary_points(analysis)
-        lines.append("  frequencies: " + ("minima have no imaginary mode; each barrier top has one, along the torsion"
-                                          if not wrong else f"{STATIONARY_CHECK} (see the warning above)"))
+        soft = [m for m in checked if m.flat_region and m.imaginary_count and m.kind == "minimum"]
+        exceptions = "".join(f" but the soft torsion mode of the flat region at {m.angle_deg:.1f}° "
+                             f"({m.frequencies_cm1[0]:.0f} cm⁻¹, counted at its magnitude)" for m in soft)
+        lines.append("  frequencies: " + (f"{STATIONARY_CHECK} (see the warning above)" if wrong else
+                                          f"minima have no imaginary mode{exceptions}; each barrier top has one, "
+                                          "along the torsion"))
     if not symmetric_rotor:
         lines += [f"  {text}" for text in readiness_texts(analysis)]
     return lines

@@ -248,9 +248,6 @@ class BondScanner:
             point, hessian = self.nearest(circle, stationary.angle_deg)
             if stationary.kind == "minimum":
                 first.append((key, stationary, basin, RelaxJob(point.coords_bohr, convergence, hessian, ())))
-            elif abs(wrap_deg(point.angle_deg - stationary.angle_deg)) < 0.05 and point.converged:
-                done[key] = StationaryRecord("maximum", display_angle(point.measured_angle_deg), stationary.angle_deg,
-                                             point.energy_hartree, "grid point", point.converged, point.coords_bohr)
             else:
                 first.append((key, stationary, basin, self.held_job(point.coords_bohr, hessian, (stationary.angle_deg,), convergence)))
         for (key, stationary, basin, _), result in zip(first, self.relax_many([item[3] for item in first])):

@@ -156,10 +156,13 @@ def stable_with_torsion_frozen(gradients_at, numbers, masses_amu, coords_bohr, d
 
 
 def analyse(hessians, masses_amu, coords_bohr, dihedral_atoms, temperatures_k, freeze_torsion=False,
-            moving_atoms=None):
+            moving_atoms=None, flat_torsion=False):
     """Vibrations of one structure (hessians: a Hessians of the engine); freeze_torsion projects the
     dihedral out (a constrained point). The other-modes corrections leave out the internal rotation
-    of moving_atoms about the bond (the hindered rotor's own motion; the frozen dihedral if not given)."""
+    of moving_atoms about the bond (the hindered rotor's own motion; the frozen dihedral if not given).
+    flat_torsion (a flat region of the profile, StationaryRecord.flat_region): a single imaginary
+    mode along the torsion is a soft mode of either sign, counted at its magnitude in the
+    corrections (it stays negative in frequencies_cm1)."""
     hessian, coords = hessians(np.asarray(coords_bohr, dtype=float).reshape(-1, 3))
     coords_bohr = coords
     torsion = [geometry.dihedral_gradient(coords, *dihedral_atoms).ravel()]
@@ -167,7 +170,9 @@ def analyse(hessians, masses_amu, coords_bohr, dihedral_atoms, temperatures_k, f
     frozen = frequencies if freeze_torsion else harmonic_frequencies(hessian, masses_amu, coords, torsion)[0]
     imaginary = int(np.sum(frequencies < 0))
     along = None if not imaginary or freeze_torsion else int(np.sum(frozen < 0)) < imaginary
-    others = frozen
+    others, thermal = frozen, frequencies
+    if flat_torsion and imaginary == 1 and along:
+        thermal = np.abs(frequencies)
     if moving_atoms is not None:
         # a motion d is removed as the constraint gradient M d (rrho.harmonic_frequencies)
         motion = geometry.internal_rotation(coords, dihedral_atoms[1], dihedral_atoms[2], moving_atoms)
@@ -178,7 +183,7 @@ def analyse(hessians, masses_amu, coords_bohr, dihedral_atoms, temperatures_k, f
                                  quasi_harmonic_cutoff_cm1=QUASI_HARMONIC_CUTOFF_CM1).gibbs_correction_kcal_mol
                      for t in temperatures_k)
 
-    return Vibrations(tuple(float(f) for f in frequencies), imaginary, along, corrections(frequencies),
+    return Vibrations(tuple(float(f) for f in frequencies), imaginary, along, corrections(thermal),
                       corrections(others))
 
 
@@ -202,7 +207,8 @@ def _analyse_all(records, hessians, masses, atoms, temperatures, symmetric, movi
             if verified is not None and verified(record):
                 done[key] = Vibrations((), 1, True, (), ())
             else:
-                done[key] = analyse(hessians, masses, record.coords_bohr, atoms, temperatures, moving_atoms=moving)
+                done[key] = analyse(hessians, masses, record.coords_bohr, atoms, temperatures, moving_atoms=moving,
+                                    flat_torsion=record.flat_region)
         results.append(done[key])
     return results
 

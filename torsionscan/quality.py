@@ -26,7 +26,8 @@ FLAG_MEANINGS = {
     UNCONVERGED: ("some relaxations stopped before converging or failed, so the energies at those angles "
                   "(and anything fitted through them) are uncertain."),
     STATIONARY_CHECK: ("the harmonic frequencies contradict the kind of a stationary point (a minimum with an "
-                       "imaginary mode, or a barrier top without exactly one imaginary mode along the torsion), "
+                       "imaginary mode, or a barrier top without exactly one imaginary mode along the torsion; in a flat "
+                       "region the torsion mode may have either sign), "
                        "so its free energy and the populations built on it are doubtful."),
     METHOD_DISAGREEMENT: ("a higher level (re-scoring or refinement) gives a profile that departs from the scan's "
                           "beyond its threshold: trust the higher level, or refine further."),
@@ -39,14 +40,23 @@ def _unconverged(bond):
     return [p for p in bond.points if not p.mirrored and (not p.converged or not math.isfinite(p.energy_hartree))]
 
 
+def _contradicts_kind(point):
+    """Do a stationary point's frequencies contradict its kind? In a flat region (flat_region) the
+    torsion mode may have either sign, so only imaginary modes across the torsion count."""
+    if point.imaginary_count is None:
+        return False
+    if point.flat_region:
+        return point.imaginary_count > (1 if point.imaginary_along_torsion else 0)
+    if point.kind == "minimum":
+        return point.imaginary_count > 0
+    return point.imaginary_count != 1 or not point.imaginary_along_torsion
+
+
 def wrong_stationary_points(analysis):
     """Stationary points of a ProfileAnalysis whose frequencies contradict their kind: minima with an
-    imaginary mode, barrier tops without exactly one imaginary mode along the torsion. Points
-    without frequencies are not judged."""
-    minima = [m for m in analysis.minima if m.imaginary_count]
-    maxima = [m for m in analysis.maxima
-              if m.imaginary_count is not None and (m.imaginary_count != 1 or not m.imaginary_along_torsion)]
-    return minima + maxima
+    imaginary mode, barrier tops without exactly one imaginary mode along the torsion (in a flat
+    region: any imaginary mode across the torsion). Points without frequencies are not judged."""
+    return [m for m in analysis.minima + analysis.maxima if _contradicts_kind(m)]
 
 
 def _disagreements(bond):

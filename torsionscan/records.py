@@ -149,6 +149,9 @@ class StationaryRecord:
     imaginary_along_torsion: bool | None = None  # freezing the dihedral removes an imaginary mode
     gibbs_corrections_kcal_mol: tuple[float, ...] = ()  # G - E_el per temperature of the settings
     other_modes_gibbs_kcal_mol: tuple[float, ...] = ()  # the same without the torsion mode (projected out)
+    # merged from a minimum/maximum pair closer than analysis.FLAT_KCAL_MOL: the profile is flat
+    # here, so the harmonic torsion mode may come out of either sign
+    flat_region: bool = False
 
 
 @dataclass(frozen=True)

@@ -161,7 +161,7 @@ def _carried_over(records, scanned, needed=()):
         carried.append(replace(record, gibbs_corrections_kcal_mol=source.gibbs_corrections_kcal_mol,
                                other_modes_gibbs_kcal_mol=source.other_modes_gibbs_kcal_mol,
                                frequencies_cm1=source.frequencies_cm1, imaginary_count=source.imaginary_count,
-                               imaginary_along_torsion=source.imaginary_along_torsion))
+                               imaginary_along_torsion=source.imaginary_along_torsion, flat_region=source.flat_region))
     return tuple(carried), True
 
 
