@@ -9,7 +9,6 @@ import math
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.optimize import brentq
 
 from .units import KCAL_KJ, wrap_deg
 
@@ -194,11 +193,35 @@ def _remove_shallow_pairs(points, min_depth_kcal_mol):
     return points
 
 
+def _slope_root(series, low_deg, high_deg):
+    """The angle (deg) in [low_deg, high_deg] where the series' slope, of opposite signs at the two
+    ends, vanishes: Newton steps on the slope, kept inside the shrinking bracket by bisection,
+    until a step is below _ROOT_XTOL_DEG."""
+    low_slope = float(series.derivative(low_deg))
+    x = 0.5 * (low_deg + high_deg)
+    for _ in range(200):
+        slope = float(series.derivative(x))
+        if slope == 0.0:
+            return x
+        if (slope < 0) == (low_slope < 0):
+            low_deg, low_slope = x, slope
+        else:
+            high_deg = x
+        curvature = float(series.second_derivative(x)) * math.pi / 180.0  # per degree
+        step = x - slope / curvature if curvature else math.nan
+        if not low_deg < step < high_deg:
+            step = 0.5 * (low_deg + high_deg)
+        if abs(step - x) <= _ROOT_XTOL_DEG or high_deg - low_deg <= _ROOT_XTOL_DEG:
+            return step
+        x = step
+    return x
+
+
 def stationary_points(series, min_depth_kcal_mol=0.01):
     """Minima and maxima of a series around the full circle, sorted by angle (deg, kcal/mol).
 
-    Sign changes of dE/dphi between points of a 0.25 deg grid are refined with Brent's
-    method; a grid point where the slope vanishes to rounding (1e-12 of its largest possible
+    Sign changes of dE/dphi between points of a 0.25 deg grid are refined by bracketed
+    Newton steps (_slope_root); a grid point where the slope vanishes to rounding (1e-12 of its largest possible
     value) and changes sign across its neighbours is a root itself, so symmetric series have
     extrema at exactly 0 and -180. A minimum is where the slope goes from negative to
     positive. Two extrema closer together than the grid step are not resolved. Then, while
@@ -217,7 +240,7 @@ def stationary_points(series, min_depth_kcal_mol=0.01):
     sign = np.where(np.abs(slope) <= _ZERO_SLOPE * steepest, 0.0, np.sign(slope))
     before, after = np.roll(sign, 1), np.roll(sign, -1)
     roots = [
-        (brentq(series.derivative, grid[i], grid[i] + _SCAN_STEP_DEG, xtol=_ROOT_XTOL_DEG), sign[i])
+        (_slope_root(series, grid[i], grid[i] + _SCAN_STEP_DEG), sign[i])
         for i in np.flatnonzero(sign * after < 0)
     ]
     roots += [(grid[i], before[i]) for i in np.flatnonzero((sign == 0) & (before * after < 0))]

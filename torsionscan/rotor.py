@@ -21,8 +21,6 @@ import numbers
 from dataclasses import dataclass
 
 import numpy as np
-from scipy.linalg import eig_banded
-from scipy.special import logsumexp
 
 from .errors import InputError
 from .geometry import internal_rotation, orthonormal_rows
@@ -189,8 +187,9 @@ def _odd_part(series, d):
     return np.where(inside, -np.sign(d) * b[np.minimum(np.abs(d), series.order)], 0.0)
 
 
-def _real_band(series, b, kinds, ms, width):
-    """Lower band of H in a real basis: kinds 0 = 1/sqrt(2 pi), 1 = cos(m phi)/sqrt(pi), 2 = sin(m phi)/sqrt(pi).
+def _real_hamiltonian(series, b, kinds, ms, width):
+    """H (symmetric, banded: elements more than width off the diagonal vanish) in a real basis:
+    kinds 0 = 1/sqrt(2 pi), 1 = cos(m phi)/sqrt(pi), 2 = sin(m phi)/sqrt(pi).
 
     With A and S the real and imaginary parts of the plane-wave elements <m'|V|m> = A(m' - m) +
     i S(m' - m): <c_m'|V|c_m> = A(m' - m) + A(m' + m), <s_m'|V|s_m> = A(m' - m) - A(m' + m),
@@ -198,7 +197,7 @@ def _real_band(series, b, kinds, ms, width):
     <1|V|1> = c_0; kinetic B m^2 on the diagonal.
     """
     size = len(kinds)
-    band = np.zeros((width + 1, size))
+    hamiltonian = np.zeros((size, size))
     root2 = math.sqrt(2.0)
     for p in range(min(width, size - 1) + 1):
         col = np.arange(size - p)
@@ -215,9 +214,9 @@ def _real_band(series, b, kinds, ms, width):
         value = np.where((ki == 1) & (kj == 0), root2 * _even_part(series, mi), value)
         value = np.where((ki == 0) & (kj == 2), -root2 * _odd_part(series, mj), value)
         value = np.where((ki == 2) & (kj == 0), -root2 * _odd_part(series, mi), value)
-        band[p, :len(col)] = value
-    band[0] += b * ms.astype(float) ** 2
-    return band
+        hamiltonian[row, col] = hamiltonian[col, row] = value
+    hamiltonian[np.arange(size), np.arange(size)] += b * ms.astype(float) ** 2
+    return hamiltonian
 
 
 def _real_bases(m_max, mirror):
@@ -235,7 +234,7 @@ def _solve(series, b, m_max, upper_kcal_mol):
     width = series.order if mirror else 2 * series.order + 1
     energies, columns = [], []
     for kinds, ms in _real_bases(m_max, mirror):
-        values, vectors = eig_banded(_real_band(series, b, kinds, ms, width), lower=True)
+        values, vectors = np.linalg.eigh(_real_hamiltonian(series, b, kinds, ms, width))
         keep = values <= upper_kcal_mol
         values, vectors = values[keep], vectors[:, keep]
         # back to exp(i m phi)/sqrt(2 pi): c_0 = <1|psi>, c_+-m = (alpha_m -+ i beta_m)/sqrt(2)
@@ -259,7 +258,7 @@ def torsional_levels(series, inertia_amu_bohr2, basis_size=None, window_kcal_mol
     b_n sin(n phi), in the basis exp(i m phi)/sqrt(2 pi), m = -M..M. Matrix elements in closed
     form: <m|H|m> = B m^2 + c_0 and <m + n|H|m> = (a_n - i b_n)/2, <m - n|H|m> = (a_n + i b_n)/2
     (cos n phi and sin n phi couple m with m +- n). Because H is real, it is diagonalised in
-    the equivalent real basis 1, cos(m phi), sin(m phi) (LAPACK's banded solver; two
+    the equivalent real basis 1, cos(m phi), sin(m phi) (LAPACK's symmetric solver; two
     separate parity blocks when V(phi) = V(-phi)). Returned: every level with E_i <= E_0 +
     window_kcal_mol, and the eigenvectors as plane-wave coefficients, columns c[:, i] of shape
     (2M + 1, levels), row r for m = r - M, normalised (sum |c_m|^2 = 1 = the integral of
@@ -462,7 +461,9 @@ def conformer_free_energies(level_energies_kcal_mol, scis_weights, other_modes_s
     def torsion(region_weights_):
         if not np.any(region_weights_ > 0):
             return math.inf
-        return float(-rt * logsumexp(-energies / rt, b=region_weights_))
+        exponents = -energies / rt
+        top = exponents[region_weights_ > 0].max()
+        return float(-rt * (top + math.log(np.sum(region_weights_ * np.exp(exponents - top)))))
 
     torsion_cis, torsion_trans = torsion(weights), torsion(1.0 - weights)
     g_cis, g_trans = torsion_cis + others[0], torsion_trans + others[1]
