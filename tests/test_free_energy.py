@@ -83,6 +83,7 @@ def test_a_flat_planar_region_counts_its_soft_torsion_mode_and_passes_the_check(
     expected = rrho_thermo(np.abs(flat.frequencies_cm1), masses, flat.coords_bohr, 298.15,
                            quasi_harmonic_cutoff_cm1=100.0).gibbs_correction_kcal_mol
     assert flat.gibbs_corrections_kcal_mol[0] == pytest.approx(expected, abs=1e-6)  # the symmetrised structure
+    assert [row["flat_region"] for row in bond.stationary_table() if row["kind"] == "minimum"].count(True) == 1
 
 
 def test_free_energy_populations_and_readiness_of_butadiene(butadiene_scan):

@@ -498,13 +498,13 @@ class BondScan:
 
     def stationary_table(self):
         """One plain row per minimum and barrier top (and the planar s-cis structure when computed):
-        kind, angle_deg, energy_kcal_mol (relative), energy_hartree, imaginary_count, converged."""
+        kind, angle_deg, energy_kcal_mol (relative), energy_hartree, imaginary_count, flat_region, converged."""
         records = [*self.profile.minima, *self.profile.maxima]
         if self.profile.planar_scis is not None:
             records.append(self.profile.planar_scis)
         return [{"bond": self.label, "kind": m.kind, "angle_deg": m.angle_deg,
                  "energy_kcal_mol": self.relative_kcal_mol(m), "energy_hartree": m.energy_hartree,
-                 "imaginary_count": m.imaginary_count, "converged": m.converged}
+                 "imaginary_count": m.imaginary_count, "flat_region": m.flat_region, "converged": m.converged}
                 for m in sorted(records, key=lambda m: m.angle_deg)]
 
     def summary_row(self):
