@@ -358,6 +358,14 @@ class RotorPopulations:
     basis_size: int
 
 
+def _level_average(energies, weights, rt):
+    """The Boltzmann average at RT (kcal/mol) of per-level weights over levels energies (kcal/mol,
+    ascending), and the partition function counted from the ground level."""
+    boltzmann = np.exp(-(energies - energies[0]) / rt)
+    q = float(boltzmann.sum())
+    return float(boltzmann @ weights) / q, q
+
+
 def rotor_populations(series, inertia_amu_bohr2, temperature_k, scis_window_deg=30.0):
     """Boltzmann-weighted s-cis/s-trans split of the torsional levels at temperature_k (K).
 
@@ -369,10 +377,8 @@ def rotor_populations(series, inertia_amu_bohr2, temperature_k, scis_window_deg=
         raise InputError(f"s-cis window {scis_window_deg!r} deg: give a half width in (0, 90] degrees")
     rt = rt_kcal_mol(t)
     energies, vectors = torsional_levels(series, inertia_amu_bohr2, window_kcal_mol=BOLTZMANN_WINDOW_RT * rt)
-    boltzmann = np.exp(-(energies - energies[0]) / rt)
-    q = float(boltzmann.sum())
-    scis_weight = float(boltzmann @ region_weights(vectors)) / q
-    window = float(boltzmann @ region_weights(vectors, scis_window_deg)) / q
+    scis_weight, q = _level_average(energies, region_weights(vectors), rt)
+    window, _ = _level_average(energies, region_weights(vectors, scis_window_deg), rt)
     trans_weight = max(0.0, 1.0 - scis_weight)
     zpe = float(energies[0]) - _series_range(series)[0]
     return RotorPopulations(
@@ -400,11 +406,7 @@ def s_cis_over_temperatures(series, inertia_amu_bohr2, temperatures_k):
     energies, vectors = torsional_levels(series, inertia_amu_bohr2,
                                          window_kcal_mol=BOLTZMANN_WINDOW_RT * rt_kcal_mol(max(temperatures)))
     weights = region_weights(vectors)
-    fractions = []
-    for t in temperatures:
-        boltzmann = np.exp(-(energies - energies[0]) / rt_kcal_mol(t))
-        fractions.append(float(boltzmann @ weights) / float(boltzmann.sum()))
-    return fractions
+    return [_level_average(energies, weights, rt_kcal_mol(t))[0] for t in temperatures]
 
 
 @dataclass(frozen=True)
