@@ -16,9 +16,9 @@ batch with 1 and 2 local worker processes and on a 2-worker Dask LocalCluster, a
 compounds per hour, the speed-up, peak memory per worker and the Dask overhead.
 """
 
+import argparse
 import csv
 import statistics
-import sys
 import tempfile
 import time
 from pathlib import Path
@@ -98,11 +98,11 @@ def batch_benchmark(list_path, repeats=3):
 
 
 def stage_benchmark(list_path):
-    """Per compound: gradients of the start structures, of the sweeps with the refinement of the
-    stationary points, and of the frequency stage (with its ratio to the two before it), and the
+    """Per compound: gradients of the start structures, of the two sweeps, of the refinement of the
+    stationary points and of the frequency stage (with its ratio to the three before it), and the
     wall time of a whole default scan with 1 and 2 cores (the scan's independent pieces in two
     threads; the results are identical, the counts are the one-core run's)."""
-    print(f"{'compound':24s} {'atoms':>5s} {'start':>5s} {'scan':>5s} {'freq':>5s} {'freq/scan':>9s} "
+    print(f"{'compound':24s} {'atoms':>5s} {'start':>5s} {'sweeps':>6s} {'refine':>6s} {'freq':>5s} {'freq/scan':>9s} "
           f"{'wall 1 core':>11s} {'wall 2 cores':>12s}")
     totals = {"scan": 0, "freq": 0, 1: 0.0, 2: 0.0}
     ratios = []
@@ -119,9 +119,10 @@ def stage_benchmark(list_path):
         totals["scan"] += scanned
         totals["freq"] += frequencies
         ratios.append(frequencies / scanned)
-        print(f"{name:24s} {len(result.symbols):5d} {result.start_gradient_evaluations:5d} "
-              f"{scanned - result.start_gradient_evaluations:5d} {frequencies:5d} {frequencies / scanned:9.2f} "
-              f"{walls[1]:10.1f}s {walls[2]:11.1f}s")
+        sweeps = sum(b.sweep_gradient_evaluations for b in result.bonds)
+        refinement = scanned - result.start_gradient_evaluations - sweeps
+        print(f"{name:24s} {len(result.symbols):5d} {result.start_gradient_evaluations:5d} {sweeps:6d} "
+              f"{refinement:6d} {frequencies:5d} {frequencies / scanned:9.2f} {walls[1]:10.1f}s {walls[2]:11.1f}s")
     print(f"all: frequency gradients / (start + scan) {totals['freq'] / totals['scan']:.2f} (max per compound "
           f"{max(ratios):.2f}); wall 1 core {totals[1]:.0f} s, 2 cores {totals[2]:.0f} s "
           f"({totals[2] / totals[1]:.2f}x)")
@@ -152,16 +153,25 @@ def rescore_benchmark(threads=2):
     print(f"(one single point per preset, {threads} threads; 'x scan' = all frames of the bond / GFN2-xTB scan time)")
 
 
-def main(argv):
-    if "--rescore" in argv:
+def main(argv=None):
+    parser = argparse.ArgumentParser(description=__doc__.split("\n\n", 1)[0],
+                                     formatter_class=argparse.RawDescriptionHelpFormatter)
+    parser.add_argument("compounds", nargs="?", type=Path, default=Path("inputs/demo_compounds.csv"),
+                        help="compound list (CSV with name,smiles; default: the demo list)")
+    mode = parser.add_mutually_exclusive_group()
+    mode.add_argument("--batch", action="store_true",
+                      help="batch throughput: the list three times over, 1 and 2 workers, Dask, with and without frequencies")
+    mode.add_argument("--stages", action="store_true", help="gradients per stage and wall time with 1 and 2 cores")
+    mode.add_argument("--rescore", action="store_true", help="DFT re-scoring cost against the GFN2-xTB scan")
+    options = parser.parse_args(argv)
+    if options.rescore:
         rescore_benchmark()
         return
-    arguments = [a for a in argv[1:] if a not in ("--batch", "--stages")]
-    list_path = Path(arguments[0]) if arguments else Path("inputs/demo_compounds.csv")
-    if "--stages" in argv:
+    list_path = options.compounds
+    if options.stages:
         stage_benchmark(list_path)
         return
-    if "--batch" in argv:
+    if options.batch:
         batch_benchmark(list_path)
         return
     compounds = REFERENCE_SET + read_list(list_path)
@@ -200,4 +210,4 @@ def main(argv):
 
 
 if __name__ == "__main__":
-    main(sys.argv)
+    main()

@@ -287,13 +287,14 @@ def scan_bond(molecule, bond, workers, start, settings, conjugation, hessians):
     evaluations_before = workers.evaluations
     scanner = BondScanner(molecule, bond, settings, workers.relax_jobs, conjugation)
     scanner.sweep(start[0], start[2], workers)
+    swept = workers.evaluations - evaluations_before
     circle, points, profile, hysteresis = scanner.analyse()
     bond_scan = BondScan(
         dihedral_atoms=bond.atoms, conjugated=bond.conjugated, symmetric=scanner.symmetric,
         points=points, profile=profile, hysteresis=hysteresis,
         hysteresis_threshold_kcal_mol=settings.hysteresis_kcal_mol,
         gradient_evaluations_total=workers.evaluations - evaluations_before,
-        wall_time_s=time.perf_counter() - began,
+        wall_time_s=time.perf_counter() - began, sweep_gradient_evaluations=swept,
     )
     if settings.frequencies:
         planar_start = None

@@ -455,8 +455,9 @@ class BondScan:
     profile: ProfileAnalysis
     hysteresis: tuple[Hysteresis, ...]
     hysteresis_threshold_kcal_mol: float
-    gradient_evaluations_total: int
+    gradient_evaluations_total: int  # the two sweeps and the refinement of the stationary points
     wall_time_s: float
+    sweep_gradient_evaluations: int = 0  # of gradient_evaluations_total, the two sweeps'
     frequency_gradient_evaluations: int = 0  # spent on Hessians and the planar s-cis structure
     frequency_wall_time_s: float = 0.0
     rescored: RescoredProfile | None = None
