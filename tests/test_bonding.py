@@ -65,3 +65,32 @@ def test_a_dication_that_falls_apart_is_not_reported_as_a_profile():
     with pytest.raises(CalculationError, match="bonding changed"):
         torsionscan.scan("C=CC=O", charge=2, settings=torsionscan.ScanSettings(conformers=1, step_deg=30.0,
                                                                                frequencies=False))
+
+
+class _FallingApart:
+    """An engine stand-in that pulls C3 and O4 away from the rest, step by step, and then fails (as
+    an SCF or a constraint restoration can once a structure has come apart)."""
+
+    def __init__(self, atoms_count, fail_after):
+        self.calls, self.fail_after, self.count = 0, fail_after, atoms_count
+
+    def energy_and_gradient(self, coords):
+        self.calls += 1
+        if self.calls > self.fail_after:
+            raise CalculationError("the SCF did not converge")
+        gradient = np.zeros((self.count, 3))
+        gradient[2:4, 0] = -0.5  # downhill is +x for C3 and O4
+        return -float(coords[2:4, 0].sum()) * 0.5, gradient
+
+
+def test_a_relaxation_that_fails_after_the_structure_came_apart_names_the_change(acrolein):
+    from torsionscan.optimize import Convergence
+    from torsionscan.relax import BONDING_CHANGED, Relaxer
+
+    molecule, coords = acrolein
+    relaxer = Relaxer(_FallingApart(len(coords), fail_after=25), molecule.numbers, bonds=graph_bonds(molecule.mol))
+    with pytest.raises(CalculationError, match=BONDING_CHANGED + ": .*bond C2-C3 broken"):
+        relaxer.relax(coords, Convergence(max_gradient=1e-4, rms_gradient=1e-4, max_evaluations=100))
+    intact = Relaxer(_FallingApart(len(coords), fail_after=0), molecule.numbers, bonds=graph_bonds(molecule.mol))
+    with pytest.raises(CalculationError, match="SCF did not converge"):  # nothing moved: the failure itself
+        intact.relax(coords, Convergence(max_gradient=1e-4, rms_gradient=1e-4, max_evaluations=100))

@@ -51,8 +51,15 @@ class Relaxer:
 
     def _objective(self, x):
         self.check_deadline()
+        self._last_x = x
         energy, gradient = self.engine.energy_and_gradient(x.reshape(-1, 3))
         return energy, gradient.ravel()
+
+    def _bonding_error(self, x):
+        """A CalculationError naming the change when the structure x (flat, Bohr) no longer has the
+        molecule's bonds, else None."""
+        changes = bonding_changes(self.numbers, self.bonds, x.reshape(-1, 3)) if self.bonds is not None else []
+        return CalculationError(f"{BONDING_CHANGED}: {'; '.join(changes)}") if changes else None
 
     def gradient(self, coords_bohr):
         """Gradient (N, 3) in Hartree/Bohr at coords (N, 3) in Bohr, within the deadline."""
@@ -63,22 +70,29 @@ class Relaxer:
         return geometry.rigid_body_directions(x.reshape(-1, 3))
 
     def relax(self, coords_bohr, convergence, hessian=None, constraints=()):
-        """Minimise from coords (N, 3) under the given constraints (optimize.Constraint objects)."""
+        """Minimise from coords (N, 3) under the given constraints (optimize.Constraint objects).
+        A relaxation that fails (constraints that cannot be restored, say) after the structure lost
+        its bonding reports the bonding change, the cause, rather than its consequence."""
         if hessian is None:
             hessian = lindh_hessian(self.numbers, coords_bohr)
         resolve = getattr(self.engine, "resolve_gradients_to", None)  # optional: engines.Engine
         if resolve is not None:
             resolve(convergence.max_gradient)
+        self._last_x = None
         try:
             result = minimize(
                 self._objective, np.ravel(coords_bohr), hessian, constraints=list(constraints),
                 invariant_directions=self._rigid, convergence=convergence,
             )
+        except CalculationError as error:
+            cause = None if self._last_x is None else self._bonding_error(self._last_x)
+            if cause is not None:
+                raise cause from error
+            raise
         finally:
             if resolve is not None:
                 resolve(None)  # gradients asked for outside a relaxation are precise
-        if self.bonds is not None:
-            changes = bonding_changes(self.numbers, self.bonds, result.x.reshape(-1, 3))
-            if changes:
-                raise CalculationError(f"{BONDING_CHANGED}: {'; '.join(changes)}")
+        changed = self._bonding_error(result.x)
+        if changed is not None:
+            raise changed
         return result
