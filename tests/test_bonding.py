@@ -94,3 +94,17 @@ def test_a_relaxation_that_fails_after_the_structure_came_apart_names_the_change
     intact = Relaxer(_FallingApart(len(coords), fail_after=0), molecule.numbers, bonds=graph_bonds(molecule.mol))
     with pytest.raises(CalculationError, match="SCF did not converge"):  # nothing moved: the failure itself
         intact.relax(coords, Convergence(max_gradient=1e-4, rms_gradient=1e-4, max_evaluations=100))
+
+
+@pytest.mark.xtb
+def test_a_profile_fitted_beside_points_that_fell_apart_is_flagged():
+    # the same dication at the default 15 deg step: the arc where it falls apart (-30 to 30 deg) leaves
+    # a gap the fit may still cross, so a profile is reported, and it must say the structure changed
+    from torsionscan.quality import STRUCTURE_CHANGED, flag_details
+
+    result = torsionscan.scan("C=CC=O", charge=2, settings=torsionscan.ScanSettings(conformers=1, frequencies=False))
+    bond = result.bonds[0]
+    assert STRUCTURE_CHANGED in bond.flags
+    assert "C2-C3 broken" in dict(flag_details(bond))[STRUCTURE_CHANGED]
+    intact = torsionscan.scan("C=CC=O", settings=torsionscan.ScanSettings(conformers=1, frequencies=False))
+    assert STRUCTURE_CHANGED not in intact.bonds[0].flags

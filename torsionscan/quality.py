@@ -9,10 +9,12 @@ sentence of each (FLAG_MEANINGS) is the README's. bond_flags and flag_details re
 import math
 
 from .profile import FIT_TARGET_KCAL_MOL
+from .relax import BONDING_CHANGED
 
 FIT_MISSED = "fit target missed"
 HYSTERESIS = "hysteresis"
 UNCONVERGED = "unconverged points"
+STRUCTURE_CHANGED = "structure changed"
 STATIONARY_CHECK = "stationary-point check failed"
 METHOD_DISAGREEMENT = "method disagreement"
 SYMMETRIC_ROTOR = "symmetric rotor"
@@ -25,6 +27,9 @@ FLAG_MEANINGS = {
                  "conformer), so the profile mixes conformers: look at the structures at the angles named."),
     UNCONVERGED: ("some relaxations stopped before converging or failed, so the energies at those angles "
                   "(and anything fitted through them) are uncertain."),
+    STRUCTURE_CHANGED: ("at some angles the relaxation broke a bond or moved an atom to another partner, so the "
+                        "profile there is not of this molecule and the populations across that arc are not to be "
+                        "trusted: check --charge and --unpaired-electrons, or the structure."),
     STATIONARY_CHECK: ("the harmonic frequencies contradict the kind of a stationary point (a minimum with an "
                        "imaginary mode, or a barrier top without exactly one imaginary mode along the torsion; in a flat "
                        "region the torsion mode may have either sign), "
@@ -50,6 +55,10 @@ def _contradicts_kind(point):
     if point.kind == "minimum":
         return point.imaginary_count > 0
     return point.imaginary_count != 1 or not point.imaginary_along_torsion
+
+
+def _structure_changed(bond):
+    return [p for p in bond.points if not p.mirrored and p.failure.startswith(BONDING_CHANGED)]
 
 
 def wrong_stationary_points(analysis):
@@ -92,6 +101,11 @@ def flag_details(bond):
     if unconverged:
         details.append((UNCONVERGED, f"{len(unconverged)} point{'' if len(unconverged) == 1 else 's'} at "
                         + ", ".join(_angle_text(p.angle_deg) for p in unconverged)))
+    changed = _structure_changed(bond)
+    if changed:
+        details.append((STRUCTURE_CHANGED, f"{len(changed)} point{'' if len(changed) == 1 else 's'} at "
+                        + ", ".join(_angle_text(p.angle_deg) for p in changed)
+                        + f"; at {_angle_text(changed[0].angle_deg)}: {changed[0].failure[len(BONDING_CHANGED) + 2:]}"))
     wrong = wrong_stationary_points(bond.profile)
     if wrong:
         details.append((STATIONARY_CHECK, ", ".join(
