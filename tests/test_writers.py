@@ -428,3 +428,24 @@ def test_reading_a_bad_summary_gives_one_line(tmp_path, content, words):
         read_summary_file(path)
     message = str(caught.value)
     assert words in message and len(message.splitlines()) == 1
+
+
+def test_a_killed_writers_temporary_folder_is_removed_when_the_folder_is_written_again(model_result, tmp_path):
+    import os
+    import time
+
+    from torsionscan.output import STALE_PARTIAL_S
+
+    out = tmp_path / "compound"
+    stale, fresh, other = (tmp_path / ".compound.abc.partial", tmp_path / ".compound.def.partial",
+                           tmp_path / ".compound-2.abc.partial")
+    for folder in (stale, fresh, other):
+        folder.mkdir()
+        (folder / "summary.json").write_text("{}")
+    old = time.time() - 2 * STALE_PARTIAL_S
+    os.utime(stale, (old, old))
+    os.utime(other, (old, old))
+    write_results(model_result, out)
+    assert (out / "summary.json").exists() and not stale.exists()
+    assert fresh.exists()  # may be another writer's, still at work
+    assert other.exists()  # another folder's

@@ -8,10 +8,12 @@ written (disk full, read-only location) raises StorageError.
 """
 
 import errno
+import glob
 import io
 import os
 import shutil
 import tempfile
+import time
 from pathlib import Path
 
 import matplotlib
@@ -26,6 +28,9 @@ from .viewer import viewer_page
 
 _UMASK = os.umask(0o022)
 os.umask(_UMASK)
+# a temporary folder of write_results older than this was left by a writer that was killed (writing
+# one takes about a second): it is removed when the same folder is written again
+STALE_PARTIAL_S = 3600.0
 
 
 def storage_error(path, error):
@@ -140,20 +145,22 @@ def write_results(result, out_dir, figures=None):
 
     A folder that is missing or empty is written under a temporary sibling name and renamed into place
     (complete or absent); files of an existing folder are replaced one by one, each atomically, and its
-    other files are left alone. Raises InputError when out_dir is a file, StorageError when it cannot be
+    other files are left alone. Temporary siblings older than STALE_PARTIAL_S, left by a writer that
+    was killed, are removed. Raises InputError when out_dir is a file, StorageError when it cannot be
     written.
     """
     out_dir = Path(out_dir)
     figures = render_figures(result) if figures is None else figures
     if out_dir.exists() and not out_dir.is_dir():
         raise InputError(f"{out_dir} is a file, not a folder: choose another --out")
+    _remove_stale_partials(out_dir)
     if out_dir.is_dir() and any(out_dir.iterdir()):
         _write_files(result, out_dir, figures)
         return out_dir
     temporary = None
     try:
         out_dir.parent.mkdir(parents=True, exist_ok=True)
-        temporary = Path(tempfile.mkdtemp(dir=out_dir.parent, prefix=f".{out_dir.name}.", suffix=".partial"))
+        temporary = Path(tempfile.mkdtemp(dir=out_dir.parent, prefix=_partial_prefix(out_dir), suffix=".partial"))
         _write_files(result, temporary, figures)
         os.chmod(temporary, 0o777 & ~_UMASK)  # a new folder's usual permissions, not mkdtemp's 0700
         try:
@@ -171,6 +178,23 @@ def write_results(result, out_dir, figures=None):
         if temporary is not None:
             shutil.rmtree(temporary, ignore_errors=True)
     return out_dir
+
+
+def _partial_prefix(out_dir):
+    return f".{out_dir.name}."
+
+
+def _remove_stale_partials(out_dir):
+    """Remove the temporary siblings of out_dir that a killed writer left behind (older than STALE_PARTIAL_S)."""
+    if not out_dir.parent.is_dir():
+        return
+    now = time.time()
+    for sibling in out_dir.parent.glob(f"{glob.escape(_partial_prefix(out_dir))}*.partial"):
+        try:
+            if sibling.is_dir() and now - sibling.stat().st_mtime > STALE_PARTIAL_S:
+                shutil.rmtree(sibling, ignore_errors=True)
+        except OSError:
+            pass  # gone meanwhile, or not ours to read: leave it
 
 
 def _write_files(result, out_dir, figures):
