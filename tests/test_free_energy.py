@@ -160,3 +160,40 @@ def test_the_search_leaves_a_top_with_a_second_imaginary_mode_to_the_full_hessia
     assert frozen[0] < 0  # the full Hessian: an imaginary mode that freezing the dihedral does not remove
     assert stable_with_torsion_frozen(engine.gradients_from_reference, molecule.numbers, masses, coords,
                                       bond.dihedral_atoms) is None
+
+
+def _turning_hessian(coords, dihedral, curvature):
+    """A model Hessian (Lindh, hydrogen peroxide) with the dihedral made soft or unstable: plus
+    curvature (Hartree/Bohr^2) along the normalised dihedral gradient."""
+    from torsionscan import geometry
+    from torsionscan.modelhessian import lindh_hessian
+
+    direction = geometry.dihedral_gradient(coords, *dihedral).ravel()
+    direction /= np.linalg.norm(direction)
+    return lindh_hessian([1, 8, 8, 1], coords) + curvature * np.outer(direction, direction)
+
+
+def test_only_a_flat_minimum_counts_an_imaginary_torsion_mode_at_its_magnitude():
+    # logic on a model Hessian: at a flat minimum the soft mode enters G - E at |nu|; at a flat top
+    # it is the reaction coordinate and stays out, as at any top
+    from dataclasses import replace as with_fields
+
+    from torsionscan.freeenergy import _analyse_all, analyse
+    from torsionscan.records import StationaryRecord
+    from torsionscan.rrho import rrho_thermo
+
+    coords = np.array([[1.6, 1.5, 0.3], [1.3, 0.0, 0.0], [-1.3, 0.0, 0.0], [-1.6, 1.5, -0.3]])
+    masses, dihedral = [1.008, 15.999, 15.999, 1.008], (0, 1, 2, 3)
+    hessian = _turning_hessian(coords, dihedral, -0.2)
+    hessians = lambda xyz: (hessian, coords)  # noqa: E731 - one structure, its Hessian given
+    plain = analyse(hessians, masses, coords, dihedral, [298.15])
+    flat = analyse(hessians, masses, coords, dihedral, [298.15], flat_torsion=True)
+    assert plain.imaginary_count == flat.imaginary_count == 1 and plain.imaginary_along_torsion
+    expected = rrho_thermo(np.abs(flat.frequencies_cm1), masses, coords, 298.15).gibbs_correction_kcal_mol
+    assert flat.gibbs_corrections_kcal_mol[0] == pytest.approx(expected, abs=1e-9)
+    assert plain.gibbs_corrections_kcal_mol[0] != pytest.approx(expected, abs=1e-3)  # the mode left out
+    record = StationaryRecord("minimum", 0.0, 0.0, 0.0, "test", True, coords, flat_region=True)
+    (as_minimum,) = _analyse_all([record], hessians, masses, dihedral, [298.15], False, None)
+    (as_top,) = _analyse_all([with_fields(record, kind="maximum")], hessians, masses, dihedral, [298.15], False, None)
+    assert as_minimum.gibbs_corrections_kcal_mol == flat.gibbs_corrections_kcal_mol
+    assert as_top.gibbs_corrections_kcal_mol == plain.gibbs_corrections_kcal_mol

@@ -419,6 +419,13 @@ def test_conformer_free_energies_by_hand():
     assert result.s_cis + result.s_trans == pytest.approx(1.0, abs=1e-15)
 
 
+def test_a_level_of_zero_weight_far_below_the_others_leaves_a_region_free_energy_finite():
+    # the s-cis weights of the levels are clipped to [0, 1]: a region may own none of the ground level
+    result = conformer_free_energies([0.0, 500.0], [0.0, 1.0], 0.0, 0.0, 300.0)
+    assert result.torsion_s_cis_kcal_mol == pytest.approx(500.0, rel=1e-12)
+    assert result.torsion_s_trans_kcal_mol == pytest.approx(0.0, abs=1e-12)
+
+
 def test_conformer_free_energies_without_other_modes_are_the_rotor_populations():
     inertia, temperature_k = 20.0, 298.15
     energies, vectors = torsional_levels(BUTADIENE_LIKE, inertia, window_kcal_mol=40 * rt(temperature_k))

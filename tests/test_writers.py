@@ -437,15 +437,15 @@ def test_a_killed_writers_temporary_folder_is_removed_when_the_folder_is_written
     from torsionscan.output import STALE_PARTIAL_S
 
     out = tmp_path / "compound"
-    stale, fresh, other = (tmp_path / ".compound.abc.partial", tmp_path / ".compound.def.partial",
-                           tmp_path / ".compound-2.abc.partial")
-    for folder in (stale, fresh, other):
+    stale, fresh = tmp_path / ".compound.a1b2c3d4.partial", tmp_path / ".compound.e5f6g7h8.partial"
+    others = [tmp_path / ".compound-2.a1b2c3d4.partial", tmp_path / ".compound.b3lyp.a1b2c3d4.partial"]
+    for folder in (stale, fresh, *others):
         folder.mkdir()
         (folder / "summary.json").write_text("{}")
     old = time.time() - 2 * STALE_PARTIAL_S
-    os.utime(stale, (old, old))
-    os.utime(other, (old, old))
+    for folder in (stale, *others):
+        os.utime(folder, (old, old))
     write_results(model_result, out)
     assert (out / "summary.json").exists() and not stale.exists()
     assert fresh.exists()  # may be another writer's, still at work
-    assert other.exists()  # another folder's
+    assert all(folder.exists() for folder in others)  # other folders' ("compound-2", "compound.b3lyp")

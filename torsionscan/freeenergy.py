@@ -160,8 +160,8 @@ def analyse(hessians, masses_amu, coords_bohr, dihedral_atoms, temperatures_k, f
     """Vibrations of one structure (hessians: a Hessians of the engine); freeze_torsion projects the
     dihedral out (a constrained point). The other-modes corrections leave out the internal rotation
     of moving_atoms about the bond (the hindered rotor's own motion; the frozen dihedral if not given).
-    flat_torsion (a flat region of the profile, StationaryRecord.flat_region): a single imaginary
-    mode along the torsion is a soft mode of either sign, counted at its magnitude in the
+    flat_torsion (a minimum in a flat region of the profile, StationaryRecord.flat_region): a single
+    imaginary mode along the torsion is a soft mode of either sign, counted at its magnitude in the
     corrections (it stays negative in frequencies_cm1)."""
     hessian, coords = hessians(np.asarray(coords_bohr, dtype=float).reshape(-1, 3))
     coords_bohr = coords
@@ -207,8 +207,9 @@ def _analyse_all(records, hessians, masses, atoms, temperatures, symmetric, movi
             if verified is not None and verified(record):
                 done[key] = Vibrations((), 1, True, (), ())
             else:
+                # a flat top's imaginary torsion mode is its reaction coordinate, left out as at any top
                 done[key] = analyse(hessians, masses, record.coords_bohr, atoms, temperatures, moving_atoms=moving,
-                                    flat_torsion=record.flat_region)
+                                    flat_torsion=record.flat_region and record.kind == "minimum")
         results.append(done[key])
     return results
 

@@ -198,6 +198,8 @@ def _slope_root(series, low_deg, high_deg):
     ends, vanishes: Newton steps on the slope, kept inside the shrinking bracket by bisection,
     until a step is below _ROOT_XTOL_DEG."""
     low_slope = float(series.derivative(low_deg))
+    if low_slope == 0.0:
+        return low_deg
     x = 0.5 * (low_deg + high_deg)
     for _ in range(200):
         slope = float(series.derivative(x))

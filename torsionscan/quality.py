@@ -110,8 +110,9 @@ def flag_details(bond):
     if wrong:
         details.append((STATIONARY_CHECK, ", ".join(
             f"{m.kind} at {_angle_text(m.angle_deg)} has {m.imaginary_count} imaginary mode"
-            f"{'' if m.imaginary_count == 1 else 's'}" + ("" if m.kind == "minimum" or m.imaginary_along_torsion
-                                                            else " not along the torsion")
+            f"{'' if m.imaginary_count == 1 else 's'}"
+            + ("" if (m.kind == "minimum" and not m.flat_region) or m.imaginary_along_torsion
+               else " not along the torsion")
             for m in wrong)))
     disagreements = _disagreements(bond)
     if disagreements:

@@ -41,6 +41,7 @@ class Relaxer:
         self.deadline = deadline  # time.monotonic() value after which no new gradient is started
         self.bonds = bonds
         self.stop = stop
+        self._lowest = (np.inf, None)  # (energy, structure) of the lowest point of the current relaxation
 
     def check_deadline(self):
         """TimeLimitExceeded once the deadline has passed; Stopped once `stop` is set."""
@@ -51,8 +52,9 @@ class Relaxer:
 
     def _objective(self, x):
         self.check_deadline()
-        self._last_x = x
         energy, gradient = self.engine.energy_and_gradient(x.reshape(-1, 3))
+        if energy < self._lowest[0]:  # the optimiser keeps the lowest point it reaches
+            self._lowest = (energy, np.array(x, dtype=float))
         return energy, gradient.ravel()
 
     def _bonding_error(self, x):
@@ -71,21 +73,21 @@ class Relaxer:
 
     def relax(self, coords_bohr, convergence, hessian=None, constraints=()):
         """Minimise from coords (N, 3) under the given constraints (optimize.Constraint objects).
-        A relaxation that fails (constraints that cannot be restored, say) after the structure lost
-        its bonding reports the bonding change, the cause, rather than its consequence."""
+        A relaxation that fails (constraints that cannot be restored, say) after the lowest structure
+        it reached lost its bonding reports the bonding change, the cause, rather than its consequence."""
         if hessian is None:
             hessian = lindh_hessian(self.numbers, coords_bohr)
         resolve = getattr(self.engine, "resolve_gradients_to", None)  # optional: engines.Engine
         if resolve is not None:
             resolve(convergence.max_gradient)
-        self._last_x = None
+        self._lowest = (np.inf, None)
         try:
             result = minimize(
                 self._objective, np.ravel(coords_bohr), hessian, constraints=list(constraints),
                 invariant_directions=self._rigid, convergence=convergence,
             )
         except CalculationError as error:
-            cause = None if self._last_x is None else self._bonding_error(self._last_x)
+            cause = None if self._lowest[1] is None else self._bonding_error(self._lowest[1])
             if cause is not None:
                 raise cause from error
             raise

@@ -463,9 +463,10 @@ def conformer_free_energies(level_energies_kcal_mol, scis_weights, other_modes_s
     def torsion(region_weights_):
         if not np.any(region_weights_ > 0):
             return math.inf
-        exponents = -energies / rt
-        top = exponents[region_weights_ > 0].max()
-        return float(-rt * (top + math.log(np.sum(region_weights_ * np.exp(exponents - top)))))
+        weighted = region_weights_ > 0  # levels of weight 0 stay out (exp of a far-off level would overflow)
+        exponents = -energies[weighted] / rt
+        top = exponents.max()
+        return float(-rt * (top + math.log(np.sum(region_weights_[weighted] * np.exp(exponents - top)))))
 
     torsion_cis, torsion_trans = torsion(weights), torsion(1.0 - weights)
     g_cis, g_trans = torsion_cis + others[0], torsion_trans + others[1]

@@ -11,6 +11,7 @@ import errno
 import glob
 import io
 import os
+import re
 import shutil
 import tempfile
 import time
@@ -189,9 +190,11 @@ def _remove_stale_partials(out_dir):
     if not out_dir.parent.is_dir():
         return
     now = time.time()
+    # tempfile.mkdtemp's random part: 8 characters of [a-z0-9_], so another folder's "name.x" never matches
+    own = re.compile(re.escape(_partial_prefix(out_dir)) + r"[a-z0-9_]{8}\.partial")
     for sibling in out_dir.parent.glob(f"{glob.escape(_partial_prefix(out_dir))}*.partial"):
         try:
-            if sibling.is_dir() and now - sibling.stat().st_mtime > STALE_PARTIAL_S:
+            if own.fullmatch(sibling.name) and sibling.is_dir() and now - sibling.stat().st_mtime > STALE_PARTIAL_S:
                 shutil.rmtree(sibling, ignore_errors=True)
         except OSError:
             pass  # gone meanwhile, or not ours to read: leave it
