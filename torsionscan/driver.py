@@ -31,7 +31,7 @@ from .molecule import (
 )
 from .parallel import ParallelRelaxations
 from .records import BondScan, Hysteresis, ScanPoint, ScanResult, StationaryRecord
-from .relax import BONDING_CHANGED, RelaxJob
+from .relax import RelaxJob, bonding_change
 from .settings import ScanSettings
 from .units import ANGSTROM_BOHR, HARTREE_KCAL_MOL, wrap_deg
 
@@ -62,7 +62,7 @@ def relax_start(molecule, workers, settings, orders):
 
 def _fell_apart(point):
     """Whether a ScanPoint failed because its bonding changed during relaxation."""
-    return point.failure.startswith(BONDING_CHANGED)
+    return bool(bonding_change(point.failure))
 
 
 def _failed_point(target_deg, coords, evaluations, reason):
@@ -179,7 +179,7 @@ class BondScanner:
         changed = [p for p, _ in circle if _fell_apart(p)]
         if 2 * len(changed) > len(circle):
             raise CalculationError(
-                f"dihedral {self.bond.label}: {changed[0].failure[len(BONDING_CHANGED) + 2:]} at "
+                f"dihedral {self.bond.label}: {bonding_change(changed[0].failure)} at "
                 f"{changed[0].angle_deg:.0f} deg ({len(changed)} of {len(circle)} points changed their bonding); "
                 "this structure is not stable as given: check --charge and --unpaired-electrons")
         good = [p for p, _ in circle if p.converged]

@@ -9,7 +9,7 @@ sentence of each (FLAG_MEANINGS) is the README's. bond_flags and flag_details re
 import math
 
 from .profile import FIT_TARGET_KCAL_MOL
-from .relax import BONDING_CHANGED
+from .relax import bonding_change
 
 FIT_MISSED = "fit target missed"
 HYSTERESIS = "hysteresis"
@@ -58,7 +58,7 @@ def _contradicts_kind(point):
 
 
 def _structure_changed(bond):
-    return [p for p in bond.points if not p.mirrored and p.failure.startswith(BONDING_CHANGED)]
+    return [p for p in bond.points if not p.mirrored and bonding_change(p.failure)]
 
 
 def wrong_stationary_points(analysis):
@@ -105,7 +105,7 @@ def flag_details(bond):
     if changed:
         details.append((STRUCTURE_CHANGED, f"{len(changed)} point{'' if len(changed) == 1 else 's'} at "
                         + ", ".join(_angle_text(p.angle_deg) for p in changed)
-                        + f"; at {_angle_text(changed[0].angle_deg)}: {changed[0].failure[len(BONDING_CHANGED) + 2:]}"))
+                        + f"; at {_angle_text(changed[0].angle_deg)}: {bonding_change(changed[0].failure)}"))
     wrong = wrong_stationary_points(bond.profile)
     if wrong:
         details.append((STATIONARY_CHECK, ", ".join(

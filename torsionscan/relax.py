@@ -15,6 +15,13 @@ from .optimize import minimize
 BONDING_CHANGED = "the bonding changed during relaxation"
 
 
+def bonding_change(failure):
+    """The change named in a relaxation's failure reason when its bonding changed ("bond C2-C3
+    broken (3.7 Å)", say); "" for any other reason."""
+    prefix = f"{BONDING_CHANGED}: "
+    return failure[len(prefix):] if failure.startswith(prefix) else ""
+
+
 @dataclass(frozen=True)
 class RelaxJob:
     """One relaxation to run: start coords (N, 3) Bohr, convergence, start Hessian (3N, 3N)

@@ -461,9 +461,9 @@ def conformer_free_energies(level_energies_kcal_mol, scis_weights, other_modes_s
     rt = rt_kcal_mol(t)
 
     def torsion(region_weights_):
-        if not np.any(region_weights_ > 0):
-            return math.inf
         weighted = region_weights_ > 0  # levels of weight 0 stay out (exp of a far-off level would overflow)
+        if not weighted.any():
+            return math.inf
         exponents = -energies[weighted] / rt
         top = exponents.max()
         return float(-rt * (top + math.log(np.sum(region_weights_[weighted] * np.exp(exponents - top)))))
